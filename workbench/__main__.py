@@ -1,0 +1,4 @@
+"""Allow ``python -m workbench``."""
+from workbench.cli.main import main
+
+raise SystemExit(main())
