@@ -1,0 +1,52 @@
+"""Pure loss formulas: loss per unit volume [W/m^3], no I/O, no plotting."""
+from workbench.models.loops import LoopSet, decompose_loops, loop_path_integrals
+from workbench.models.separation import (
+    EXCESS_SINE_CONSTANT,
+    MU_0,
+    classical_eddy,
+    classical_eddy_waveform,
+    excess_loss,
+    excess_loss_waveform,
+    hysteresis_loss,
+    hysteresis_loss_waveform,
+    skin_depth,
+    skin_effect_factor,
+)
+from workbench.models.steinmetz import (
+    I2gseResult,
+    IgseResult,
+    flat_intervals,
+    i2gse,
+    igse,
+    igse_coefficient,
+    igse_loops,
+    mean_abs_cos_power,
+    steinmetz,
+    steinmetz_temperature_factor,
+)
+
+__all__ = [
+    "EXCESS_SINE_CONSTANT",
+    "MU_0",
+    "I2gseResult",
+    "IgseResult",
+    "LoopSet",
+    "classical_eddy",
+    "classical_eddy_waveform",
+    "decompose_loops",
+    "excess_loss",
+    "excess_loss_waveform",
+    "flat_intervals",
+    "hysteresis_loss",
+    "hysteresis_loss_waveform",
+    "i2gse",
+    "igse",
+    "igse_coefficient",
+    "igse_loops",
+    "loop_path_integrals",
+    "mean_abs_cos_power",
+    "skin_depth",
+    "skin_effect_factor",
+    "steinmetz",
+    "steinmetz_temperature_factor",
+]
