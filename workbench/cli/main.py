@@ -1,0 +1,73 @@
+"""Entry point of the ``workbench`` command line.
+
+Each sub-command lives in its own module exposing ``register(subparsers)``; the
+module adds its parser and sets ``func=run`` where ``run(args) -> int``.
+User errors (``ValueError``, ``OSError`` on input files) end with exit status 2
+and one line on stderr, never a traceback.
+"""
+from __future__ import annotations
+
+import argparse
+import importlib
+import json
+import sys
+
+from workbench import __version__
+
+#: Sub-command modules, in the order ``--help`` lists them.
+SUBCOMMAND_MODULES = (
+    "workbench.cli.capture",
+    "workbench.cli.folder",
+    "workbench.cli.materials",
+    "workbench.cli.shape",
+    "workbench.cli.crossover",
+    "workbench.cli.fit",
+)
+
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="workbench",
+        description=(
+            "Core-loss workbench: loss of magnetic cores under converter flux. "
+            "Results are estimates; verify temperature rise by test."
+        ),
+    )
+    parser.add_argument("--version", action="version", version=f"%(prog)s {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name in SUBCOMMAND_MODULES:
+        try:
+            module = importlib.import_module(name)
+        except ModuleNotFoundError as exc:  # a sub-command not built yet
+            if exc.name == name:
+                continue
+            raise
+        module.register(sub)
+    return parser
+
+
+def emit_json(payload) -> None:
+    """Print one JSON document (SI units) on stdout."""
+    sys.stdout.write(json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n")
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    try:
+        return int(args.func(args) or 0)
+    except (ValueError, OSError) as exc:
+        message = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        if isinstance(exc, OSError) and getattr(exc, "filename", None) and str(exc.filename) not in message:
+            message = f"{exc.filename}: {message}"
+        sys.stderr.write(f"workbench {args.command}: error: {message}\n")
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        sys.stderr.write("interrupted\n")
+        return 130
