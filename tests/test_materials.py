@@ -5,6 +5,7 @@ import dataclasses
 import math
 import os
 import re
+import tempfile
 import tomllib
 
 import numpy as np
@@ -483,10 +484,18 @@ def test_material_to_toml_escapes_any_text(description, source):
     base = load_materials(include_user=False)["mnzn-power-ferrite"]
     sources = dict(base.sources, density=source)
     m = dataclasses.replace(base, description=description, sources=sources)
-    doc = tomllib.loads(material_to_toml(m))
+    text = material_to_toml(m)
+    doc = tomllib.loads(text)
     table = doc["materials"]["mnzn-power-ferrite"]
     assert table["description"] == description
     assert table["density"]["source"] == source
+    # and the loader gives back the same material, text unchanged
+    with tempfile.TemporaryDirectory() as tmp:
+        path = os.path.join(tmp, "lib.toml")
+        with open(path, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        again = load_materials(path, include_user=False)["mnzn-power-ferrite"]
+    assert _same_content(again, m)
 
 
 def test_material_to_toml_refuses_invalid(library):

@@ -369,7 +369,7 @@ def _check_number(where, name, path, value):
     if not math.isfinite(x):
         raise _fail(where, name, path, value, "must be finite")
     low, high, low_inclusive, hint = _LIMITS[path]
-    hint = f" ({hint})" if hint else ""
+    hint = f"; {hint}" if hint else ""
     if low is not None:
         if (x < low) if low_inclusive else (x <= low):
             relation = ">=" if low_inclusive else ">"
@@ -507,7 +507,7 @@ def _entry(where, name, table, key, path):
     if "source" not in item or not isinstance(item["source"], str) or not item["source"].strip():
         raise _fail(where, name, path, item.get("value"),
                     "has no source: every number needs its provenance in 'source'")
-    return item["value"], item["source"].strip()
+    return item["value"], item["source"]
 
 
 def _check_keys(where, name, table, allowed, section):
@@ -590,7 +590,7 @@ def _material_from_table(where: str, name: str, table, origin: str) -> Material:
         relaxation = RelaxationParams(**rvals)
 
     material = Material(
-        name=name, family=table["family"], description=table["description"].strip(),
+        name=name, family=table["family"], description=table["description"],
         steinmetz=steinmetz, separation=separation, relaxation=relaxation,
         sources=sources, origin=origin, **values)
     _validate_material(material, where)
@@ -772,7 +772,18 @@ def get_material(name: str) -> Material:
 
 
 def list_materials() -> list[str]:
-    """Names of all materials of the bundled and user libraries, in file order."""
+    """Names of all materials of the bundled and user libraries.
+
+    Returns
+    -------
+    list of str
+        Names in file order: bundled materials first, then the user library.
+
+    Raises
+    ------
+    ValueError
+        If a library file cannot be read (see :func:`load_materials`).
+    """
     return list(load_materials())
 
 
