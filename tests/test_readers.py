@@ -1,0 +1,568 @@
+"""Tests of workbench.capture.readers: CSV and .npz captures into SI arrays.
+
+Reference values are the numbers the tests themselves write into the files (plain string
+formatting or numpy.savetxt with 17 significant digits, which round-trips a float64 exactly:
+IEEE 754-2008 section 5.12.2). Unit factors follow the SI brochure (BIPM, 9th edition, 2019,
+Table 7). All scenarios and values are invented for the tests.
+"""
+from __future__ import annotations
+
+import importlib.util
+import io
+import math
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from workbench.capture import CaptureData, CaptureError, read_capture, read_csv_capture
+from workbench.capture import read_npz_capture
+
+DATA = Path(__file__).resolve().parent / "data"
+MALFORMED = DATA / "malformed"
+EDGE = DATA / "capture_edge"
+
+
+def _load_generator():
+    spec = importlib.util.spec_from_file_location("make_malformed", DATA / "make_malformed.py")
+    module = importlib.util.module_from_spec(spec)
+    assert spec.loader is not None
+    spec.loader.exec_module(module)
+    return module
+
+
+@pytest.fixture(params=["pandas", "numpy"])
+def parser(request, monkeypatch):
+    """Run a test once with pandas' C parser and once with the numpy.loadtxt fallback."""
+    if request.param == "numpy":
+        monkeypatch.setitem(sys.modules, "pandas", None)  # import pandas -> ImportError
+    else:
+        pytest.importorskip("pandas")
+    return request.param
+
+
+# --------------------------------------------------------------------------------------------
+# malformed corpus: file -> fragments the message must contain (beside the file name)
+# --------------------------------------------------------------------------------------------
+EXPECTED_ERRORS: dict[str, list[str]] = {
+    "empty_file.csv": ["file is empty"],
+    "whitespace_only.csv": ["file is empty"],
+    "header_only.csv": ["header only", "header row 1"],
+    "only_metadata_lines.csv": ["no numeric data rows", "rows 1-3"],
+    "single_column_time_only.csv": ["single column", "no data channel"],
+    "single_column_no_header.csv": ["single column", "no data channel"],
+    "text_in_numeric_cell_row7.csv": ["row 7", "column 2 ('v (V)')", "'24.OOO'", "numeric cell"],
+    "nan_in_voltage_row5.csv": ["row 5", "column 2 ('v (V)')", "NaN"],
+    "inf_in_current_row4.csv": ["row 4", "column 3 ('i (A)')", "Inf"],
+    "empty_cell_row6.csv": ["row 6", "column 2 ('v (V)')", "empty cell"],
+    "time_not_increasing_row6.csv": ["row 6", "not increasing", "2.5e-08 s after 3e-08 s", "row 5"],
+    "duplicate_time_stamp_row5.csv": ["row 5", "duplicate time stamp 2e-08 s", "row 4"],
+    "fewer_than_three_rows.csv": ["only 2 data row(s)", "at least 3 samples"],
+    "mixed_delimiters_row5.csv": ["row 5", "mixed delimiters", "';'", "','"],
+    "absurd_time_unit_parsecs.csv": ["'parsecs'", "column 1 ('time (parsecs)')"],
+    "absurd_voltage_unit_kV_per_furlong.csv": ["'kV/furlong'", "column 2", "furlong"],
+    "wrong_unit_flux_density_in_mm.csv": ["'mm'", "column 2 ('B (mm)')", "unit of T"],
+    "binary_file.csv": ["binary file"],
+    "utf16_encoded.csv": ["UTF-16"],
+    "ragged_row_extra_field_row4.csv": ["row 4", "inconsistent column count", "4 field(s)", "has 3"],
+    "ragged_row_missing_field_row5.csv": ["row 5", "inconsistent column count", "2 field(s)"],
+    "bom_then_garbage.csv": ["no numeric data rows"],
+    "decimal_comma_semicolon.csv": ["row 2", "decimal comma"],
+    "header_names_3_data_fields_2.csv": ["header row 1 has 3 names", "have 2 fields"],
+    "no_time_column_no_interval.csv": ["no time column", "no sample interval", "time_column="],
+    "unrecognised_column_names.csv": ["no column of the header", "'probe A'", "columns="],
+    "two_columns_look_like_voltage.csv": ["column 2 ('v (V)')", "column 3 ('voltage (V)')", "'v'"],
+    "headerless_without_column_map.csv": ["no header row", "columns="],
+    "unreadable_sample_interval.csv": ["sample interval", "'fast'"],
+    "negative_sample_interval.csv": ["'-1e-8'", "not a positive sample interval"],
+    "truncated_last_row.csv": ["row 7", "inconsistent column count", "1 field(s)"],
+    "time_backwards_after_blank_lines_row10.csv": ["row 10", "not increasing", "row 8"],
+    "npz_not_a_zip.npz": ["not an .npz archive"],
+    "npz_object_array.npz": ["pickle"],
+    "npz_lengths_differ.npz": ["differ in length", "'t' has 5", "'v' has 4"],
+    "npz_nan_in_b_sample3.npz": ["array 'b'", "sample 3", "nan"],
+    "npz_two_dimensional_v.npz": ["array 'v'", "shape (5, 2)"],
+    "npz_no_channel_arrays.npz": ["no channel array", "temperature"],
+    "npz_time_not_increasing_sample2.npz": ["array 't', sample 2", "not increasing"],
+}
+
+
+def test_corpus_is_complete_and_large_enough():
+    on_disk = {p.name for p in MALFORMED.iterdir()}
+    assert on_disk == set(EXPECTED_ERRORS), "every corpus file needs an expectation here"
+    assert len(on_disk) >= 25
+
+
+def test_corpus_regenerates_byte_for_byte(tmp_path):
+    generator = _load_generator()
+    generator.write_all(tmp_path / "malformed", tmp_path / "edge")
+    for directory, name in ((MALFORMED, "malformed"), (EDGE, "edge")):
+        for path in directory.iterdir():
+            if path.suffix == ".md":
+                continue
+            assert (tmp_path / name / path.name).read_bytes() == path.read_bytes(), path.name
+
+
+@pytest.mark.parametrize("name", sorted(EXPECTED_ERRORS))
+def test_malformed_file_raises_clear_error(name, parser):
+    path = MALFORMED / name
+    with pytest.raises(CaptureError) as info:
+        read_capture(path)
+    message = str(info.value)
+    assert str(path) in message
+    for fragment in EXPECTED_ERRORS[name]:
+        assert fragment in message, f"{fragment!r} missing from: {message}"
+
+
+def test_capture_error_is_value_error():
+    assert issubclass(CaptureError, ValueError)
+
+
+def test_huge_header_is_refused(tmp_path, parser):
+    generator = _load_generator()
+    path = tmp_path / "huge_header_1p2MB.csv"
+    path.write_bytes(generator.huge_header_bytes())
+    assert path.stat().st_size > 1_100_000
+    with pytest.raises(CaptureError, match=r"header too large.*1024 KiB") as info:
+        read_capture(path)
+    assert str(path) in str(info.value)
+
+
+def test_too_many_text_lines_is_refused(tmp_path, parser):
+    generator = _load_generator()
+    path = tmp_path / "more_than_10000_text_lines.csv"
+    path.write_bytes(generator.many_text_lines_bytes())
+    assert path.stat().st_size < 1_000_000
+    with pytest.raises(CaptureError, match=r"header too large.*10000 text lines"):
+        read_capture(path)
+
+
+def test_single_line_without_newline_of_megabytes_is_refused(tmp_path):
+    path = tmp_path / "one_long_line.csv"
+    path.write_bytes(b"x" * 3_000_000)
+    with pytest.raises(CaptureError, match="header too large"):
+        read_capture(path)
+
+
+def test_missing_file_and_directory(tmp_path):
+    with pytest.raises(CaptureError, match="no such file"):
+        read_capture(tmp_path / "absent.csv")
+    with pytest.raises(CaptureError, match="is a directory"):
+        read_capture(tmp_path)
+
+
+# --------------------------------------------------------------------------------------------
+# good files in every dialect: exact round trip of the numbers written
+# --------------------------------------------------------------------------------------------
+N = 50
+
+
+def _invented_flyback(n: int = N) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Invented 100 kHz flyback choke bench capture: 10 ns sampling, v [V], i [A]."""
+    rng = np.random.default_rng(7)
+    t = np.arange(n) * 1e-8
+    v = np.where(np.arange(n) % 20 < 8, 24.0, -16.0) + rng.normal(0, 0.3, n)
+    i = 0.5 + 0.01 * np.arange(n) + rng.normal(0, 0.002, n)
+    return t, v, i
+
+
+def _rows(cols, sep: str, fmt: str = "{!r}") -> str:
+    return "".join(sep.join(fmt.format(float(x)) for x in row) + "\n" for row in zip(*cols))
+
+
+DIALECTS = {
+    "comma": ("time (s),v (V),i (A)\n", ","),
+    "comma_space": ("time (s), v (V), i (A)\n", ", "),
+    "semicolon": ("time (s);v (V);i (A)\n", ";"),
+    "tab": ("time (s)\tv (V)\ti (A)\n", "\t"),
+    "whitespace": ("time (s)   v (V)   i (A)\n", "   "),
+}
+
+
+@pytest.mark.parametrize("dialect", sorted(DIALECTS))
+def test_dialects_round_trip_exactly(tmp_path, dialect, parser):
+    t, v, i = _invented_flyback()
+    header, sep = DIALECTS[dialect]
+    path = tmp_path / f"flyback_{dialect}.csv"
+    path.write_text(header + _rows((t, v, i), sep))
+    cap = read_capture(path)
+    assert isinstance(cap, CaptureData)
+    np.testing.assert_array_equal(cap.time, t)
+    np.testing.assert_array_equal(cap.channels["v"], v)
+    np.testing.assert_array_equal(cap.channels["i"], i)
+    assert set(cap.channels) == {"v", "i"}
+    assert cap.columns["v"] == "v (V)" and cap.columns["time"] == "time (s)"
+    assert cap.source == str(path)
+    assert cap.metadata["clipped_channels"] == ""
+    assert cap.time.dtype == np.float64
+
+
+def test_savetxt_whitespace_with_leading_spaces(tmp_path, parser):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "savetxt.txt"
+    np.savetxt(path, np.column_stack([t, v, i]), fmt="%25.17g", header="t v i", comments="")
+    cap = read_capture(path)
+    np.testing.assert_array_equal(cap.time, t)
+    np.testing.assert_array_equal(cap.channels["i"], i)
+
+
+@pytest.mark.parametrize(
+    ("encoding", "newline", "prefix"),
+    [("ascii", "\r\n", b""), ("utf-8", "\n", b"\xef\xbb\xbf"), ("ascii", "\r\n", b"\xef\xbb\xbf")],
+)
+def test_line_endings_and_bom(tmp_path, encoding, newline, prefix, parser):
+    t, v, i = _invented_flyback()
+    text = ("time (s),v (V),i (A)\n" + _rows((t, v, i), ",")).replace("\n", newline)
+    path = tmp_path / "crlf_bom.csv"
+    path.write_bytes(prefix + text.encode(encoding))
+    cap = read_capture(path)
+    np.testing.assert_array_equal(cap.channels["v"], v)
+    assert cap.columns["time"] == "time (s)"
+
+
+def test_bom_on_headerless_file(tmp_path, parser):
+    t, v, _ = _invented_flyback()
+    path = tmp_path / "bom_headerless.csv"
+    path.write_bytes(b"\xef\xbb\xbf" + _rows((t, v), ",").encode())
+    cap = read_capture(path, columns={"v": 1})
+    np.testing.assert_array_equal(cap.time, t)
+
+
+def test_quoted_fields_and_trailing_delimiter(tmp_path, parser):
+    t, v, i = _invented_flyback()
+    body = "".join(f'"{a!r}","{b!r}","{c!r}",\n' for a, b, c in zip(t.tolist(), v.tolist(),
+                                                                     i.tolist()))
+    path = tmp_path / "quoted.csv"
+    path.write_text('"time (s)","v (V)","i (A)",\n' + body)
+    cap = read_capture(path)
+    np.testing.assert_array_equal(cap.channels["v"], v)
+    np.testing.assert_array_equal(cap.channels["i"], i)
+
+
+def test_blank_lines_inside_and_after_table(tmp_path, parser):
+    t, v, i = _invented_flyback(6)
+    rows = _rows((t, v, i), ",").splitlines(keepends=True)
+    path = tmp_path / "blank_lines.csv"
+    path.write_text("time (s),v (V),i (A)\n\n" + "".join(rows[:3]) + "\n   \n" + "".join(rows[3:])
+                    + "\n\n")
+    cap = read_capture(path)
+    np.testing.assert_array_equal(cap.time, t)
+    np.testing.assert_array_equal(cap.channels["i"], i)
+
+
+def test_unit_headers_scale_to_si(tmp_path, parser):
+    # 20 kHz inverter output filter choke (invented): time in us, sense voltage in mV,
+    # flux density in mT, current in kA -> SI (SI brochure Table 7 prefixes)
+    t_us = np.arange(N) * 0.05
+    vs_mv = np.linspace(-350.0, 410.0, N)
+    b_mt = np.linspace(-120.0, 130.0, N)
+    i_ka = np.linspace(0.001, 0.002, N)
+    path = tmp_path / "units.csv"
+    path.write_text("t [us],v_sense [mV],B (mT),Current (kA)\n" + _rows((t_us, vs_mv, b_mt, i_ka), ","))
+    cap = read_capture(path)
+    eps = np.finfo(float).eps
+    np.testing.assert_allclose(cap.time, t_us / 1e6, rtol=eps, atol=0)
+    np.testing.assert_allclose(cap.channels["v_sense"], vs_mv / 1e3, rtol=eps, atol=0)
+    np.testing.assert_allclose(cap.channels["b"], b_mt / 1e3, rtol=eps, atol=0)
+    np.testing.assert_allclose(cap.channels["i"], i_ka * 1e3, rtol=eps, atol=0)
+    assert cap.metadata["unit.v_sense"].startswith("mV")
+    assert cap.columns["b"] == "B (mT)"
+
+
+def test_units_row_under_header(tmp_path, parser):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "units_row.csv"
+    path.write_text("Time,CH1,CH2\ns,V,mV\n" + _rows((t, v, i * 1000), ","))
+    cap = read_capture(path)
+    np.testing.assert_array_equal(cap.channels["v"], v)
+    np.testing.assert_allclose(cap.channels["v_sense"], i, rtol=4 * np.finfo(float).eps)
+    assert cap.columns == {"time": "Time", "v": "CH1", "v_sense": "CH2"}
+
+
+def test_latin1_micro_sign_in_header(tmp_path, parser):
+    t, v, _ = _invented_flyback()
+    path = tmp_path / "latin1.csv"
+    path.write_bytes(("t [µs];v [V]\n" + _rows((t * 1e6, v), ";")).encode("cp1252"))
+    cap = read_capture(path)
+    np.testing.assert_allclose(cap.time, t, rtol=4 * np.finfo(float).eps, atol=1e-30)
+
+
+def test_headerless_selection_by_index(tmp_path, parser):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "headerless.csv"
+    path.write_text(_rows((t, i, v), ","))
+    cap = read_capture(path, columns={"v": 2, "i": 1})
+    np.testing.assert_array_equal(cap.time, t)
+    np.testing.assert_array_equal(cap.channels["v"], v)
+    np.testing.assert_array_equal(cap.channels["i"], i)
+    assert cap.columns == {"time": "column 1", "v": "column 3", "i": "column 2"}
+
+
+def test_headerless_time_column_and_units_arguments(tmp_path, parser):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "headerless_us.csv"
+    path.write_text(_rows((v, t * 1e6, i * 1e3), ","))
+    cap = read_capture(path, time_column=1, columns={"v": 0, "i": 2}, time_unit="us",
+                       units={"i": "mA"})
+    np.testing.assert_allclose(cap.time, t, rtol=4 * np.finfo(float).eps, atol=1e-30)
+    np.testing.assert_allclose(cap.channels["i"], i, rtol=4 * np.finfo(float).eps)
+    assert cap.metadata["unit.time"] == "us [argument]"
+
+
+def test_selection_by_header_name(tmp_path, parser):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "by_name.csv"
+    path.write_text("X (s),CH1 (V),CH2 (V)\n" + _rows((t, v, i), ","))
+    cap = read_capture(path, time_column="X", columns={"v_sense": "CH2", "v": "ch1 (V)"})
+    np.testing.assert_array_equal(cap.time, t)
+    np.testing.assert_array_equal(cap.channels["v_sense"], i)
+    np.testing.assert_array_equal(cap.channels["v"], v)
+
+
+def test_metadata_lines_are_parsed(tmp_path, parser):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "meta.csv"
+    path.write_text(
+        "Model,bench scope (invented)\n"
+        "Sample interval,1e-8\n"
+        f"Record length,{N}\n"
+        "# operator: test bench 2 (invented)\n"
+        "free text without a separator\n"
+        "time (s),v (V),i (A)\n" + _rows((t, v, i), ",")
+    )
+    cap = read_capture(path)
+    assert cap.metadata["Model"] == "bench scope (invented)"
+    assert cap.metadata["Sample interval"] == "1e-8"
+    assert cap.metadata["Record length"] == str(N)
+    assert cap.metadata["operator"] == "test bench 2 (invented)"
+    assert cap.metadata["line 5"] == "free text without a separator"
+    assert cap.metadata["header"] == "time (s), v (V), i (A)"
+    np.testing.assert_array_equal(cap.channels["i"], i)
+
+
+@pytest.mark.parametrize(
+    ("line", "dt"),
+    [("Sample interval,1e-8", 1e-8), ("Sample interval,10 ns", 1e-8),
+     ("Sampling rate,100 MS/s", 1e-8), ("X increment: 2e-7", 2e-7)],
+)
+def test_time_from_sample_interval(tmp_path, line, dt, parser):
+    _, v, _ = _invented_flyback()
+    path = tmp_path / "interval.csv"
+    path.write_text(f"{line}\nv_sense [mV]\n" + _rows((v,), ","))
+    cap = read_capture(path)
+    # closed form: t_k = k * dt
+    np.testing.assert_allclose(cap.time, np.arange(N) * dt, rtol=1e-15, atol=0)
+    np.testing.assert_allclose(cap.channels["v_sense"], v / 1e3, rtol=np.finfo(float).eps)
+    assert "sample interval" in cap.metadata["time_source"]
+
+
+def test_buffers_text_and_binary(parser):
+    t, v, i = _invented_flyback()
+    text = "time (s),v (V),i (A)\n" + _rows((t, v, i), ",")
+    for buffer in (io.StringIO(text), io.BytesIO(text.encode())):
+        cap = read_csv_capture(buffer)
+        assert cap.source == "<buffer>"
+        np.testing.assert_array_equal(cap.channels["v"], v)
+
+
+def test_error_in_buffer_names_buffer(parser):
+    with pytest.raises(CaptureError, match=r"^<buffer>: row 3, column 2 \('v'\)"):
+        read_capture(io.StringIO("time,v\n0,1\n1,x\n2,3\n"))
+
+
+def test_bad_arguments(tmp_path):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "args.csv"
+    path.write_text("time (s),v (V),i (A)\n" + _rows((t, v, i), ","))
+    cases = [
+        ({"delimiter": "|"}, "delimiter='|'"),
+        ({"columns": {"voltage": 1}}, "columns key 'voltage' is not a channel name"),
+        ({"columns": {"v": 7}}, "columns['v']=7 is outside the 3 columns"),
+        ({"columns": {"v": "CH9"}}, "columns['v']='CH9' matches no header name"),
+        ({"units": {"volts": "V"}}, "units key 'volts'"),
+        ({"time_unit": "mV"}, "unknown or wrong unit 'mV' in the argument for 'time'"),
+        ({"time_unit": "us", "units": {"time": "s"}}, "give the time unit once"),
+        ({"columns": {"v": 0}}, "used both as time and as channel 'v'"),
+    ]
+    for kwargs, fragment in cases:
+        with pytest.raises(CaptureError) as info:
+            read_capture(path, **kwargs)
+        assert fragment in str(info.value), (kwargs, str(info.value))
+        assert str(path) in str(info.value)
+
+
+def test_explicit_delimiter(tmp_path, parser):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "explicit.csv"
+    path.write_text("time (s);v (V);i (A)\n" + _rows((t, v, i), ";"))
+    cap = read_capture(path, delimiter=";")
+    np.testing.assert_array_equal(cap.channels["v"], v)
+    with pytest.raises(CaptureError):
+        read_capture(path, delimiter=",")
+
+
+def test_result_is_read_only(tmp_path):
+    t, v, i = _invented_flyback()
+    path = tmp_path / "ro.csv"
+    path.write_text("time (s),v (V),i (A)\n" + _rows((t, v, i), ","))
+    cap = read_capture(path)
+    with pytest.raises(ValueError):
+        cap.time[0] = 1.0
+    with pytest.raises(ValueError):
+        cap.channels["v"][0] = 1.0
+    with pytest.raises(TypeError):
+        cap.channels["b"] = v  # type: ignore[index]
+    with pytest.raises(AttributeError):
+        cap.source = "x"  # type: ignore[misc]
+    assert cap.n_samples == N
+
+
+# --------------------------------------------------------------------------------------------
+# pandas C parser and numpy fallback agree bit for bit on a large file
+# --------------------------------------------------------------------------------------------
+def test_200k_rows_identical_with_pandas_and_numpy(tmp_path, monkeypatch):
+    pytest.importorskip("pandas")
+    n = 200_000
+    rng = np.random.default_rng(11)
+    t = np.arange(n) * 1e-8
+    v = rng.normal(0.0, 30.0, n)
+    i = rng.normal(1.0, 0.1, n)
+    b = rng.uniform(-0.3, 0.3, n)
+    path = tmp_path / "flyback_200k.csv"
+    with open(path, "w") as fh:
+        fh.write("Model,bench scope (invented)\nSample interval,1e-8\n")
+    with open(path, "a") as fh:
+        np.savetxt(fh, np.column_stack([t, v, i, b * 1e3]), delimiter=",", fmt="%.17g",
+                   header="time (s),v (V),i (A),B (mT)", comments="")
+    with_pandas = read_capture(path)
+    monkeypatch.setitem(sys.modules, "pandas", None)
+    with_numpy = read_capture(path)
+    for name in ("v", "i", "b"):
+        np.testing.assert_array_equal(with_pandas.channels[name], with_numpy.channels[name])
+    np.testing.assert_array_equal(with_pandas.time, with_numpy.time)
+    np.testing.assert_array_equal(with_pandas.time, t)  # the numbers written
+    np.testing.assert_array_equal(with_pandas.channels["v"], v)
+    np.testing.assert_allclose(with_pandas.channels["b"], b, rtol=4 * np.finfo(float).eps)
+    assert dict(with_pandas.metadata) == dict(with_numpy.metadata)
+
+
+def test_capture_package_imports_numpy_only():
+    code = (
+        "import sys, workbench.capture, workbench.units\n"
+        "bad = [m for m in ('pandas', 'scipy', 'ipywidgets', 'bokeh', 'dask') if m in sys.modules]\n"
+        "assert not bad, bad\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True)
+
+
+# --------------------------------------------------------------------------------------------
+# clipping flag (not an error at read time)
+# --------------------------------------------------------------------------------------------
+def _sense_capture(tmp_path, x: np.ndarray, name: str = "sense.csv") -> CaptureData:
+    t = np.arange(x.size) * 1e-9
+    path = tmp_path / name
+    path.write_text("time (s),v_sense (V)\n" + _rows((t, x), ","))
+    return read_capture(path)
+
+
+def _clip_fraction(cap: CaptureData, rail: str) -> float:
+    note = cap.metadata["clipping.v_sense"]
+    match = re.search(rf"([0-9.]+) of samples stuck at {rail}", note)
+    assert match, note
+    return float(match.group(1))
+
+
+def test_clipped_sine_is_flagged_with_closed_form_fraction(tmp_path):
+    n = 20_000
+    phase = 2 * np.pi * np.arange(n) / n
+    c = 0.8
+    cap = _sense_capture(tmp_path, np.clip(np.sin(phase), -c, c))
+    assert cap.clipped_channels == ("v_sense",)
+    # closed form: sin > c for a fraction 1/2 - asin(c)/pi of a period
+    expected = 0.5 - math.asin(c) / math.pi
+    assert _clip_fraction(cap, "max") == pytest.approx(expected, abs=2e-3)
+    assert _clip_fraction(cap, "min") == pytest.approx(expected, abs=2e-3)
+
+
+def test_quantised_and_noisy_signals_are_not_flagged(tmp_path):
+    n = 20_000
+    phase = 2 * np.pi * np.arange(n) / n
+    rng = np.random.default_rng(3)
+    eight_bit_sine = np.round(np.sin(phase) * 127) / 127
+    assert _sense_capture(tmp_path, eight_bit_sine, "a.csv").clipped_channels == ()
+    assert _sense_capture(tmp_path, np.sin(phase), "b.csv").clipped_channels == ()
+    square = np.where(np.sin(phase) >= 0, 1.0, -1.0) + rng.normal(0, 0.02, n)
+    assert _sense_capture(tmp_path, np.round(square * 127) / 127, "c.csv").clipped_channels == ()
+
+
+def test_clipped_noisy_eight_bit_capture_is_flagged(tmp_path):
+    n = 20_000
+    phase = 2 * np.pi * np.arange(n) / n
+    rng = np.random.default_rng(5)
+    codes = np.clip(np.round((np.sin(phase) + rng.normal(0, 0.01, n)) * 127), -100, 100)
+    cap = _sense_capture(tmp_path, codes / 127)
+    assert cap.clipped_channels == ("v_sense",)
+
+
+def test_below_one_percent_is_not_flagged(tmp_path):
+    # a flat top of 0.5 % of the samples: under the 1 % threshold (common practice, no source)
+    n = 20_000
+    x = np.sin(2 * np.pi * np.arange(n) / n)
+    top = np.argsort(x)[-100:]  # the 100 largest samples = 0.5 %
+    x[top] = x[top].min()
+    assert _sense_capture(tmp_path, x).clipped_channels == ()
+
+
+def test_edge_files_read_fine(parser):
+    short = read_capture(EDGE / "fewer_than_one_period_100kHz.csv")
+    assert short.n_samples == 600
+    assert short.time[-1] == pytest.approx(599e-8, rel=1e-12)  # < one 10 us period
+    assert short.clipped_channels == ()
+    flat = read_capture(EDGE / "clipped_flat_topped_v_sense.csv")
+    assert flat.clipped_channels == ("v_sense",)
+    assert flat.channels["v_sense"].max() == 0.4
+    assert flat.time[1] == pytest.approx(1e-7, rel=1e-12)  # t [us] scaled to s
+    assert (EDGE / "README.md").exists()
+
+
+# --------------------------------------------------------------------------------------------
+# .npz
+# --------------------------------------------------------------------------------------------
+def test_npz_round_trip(tmp_path):
+    t, v, i = _invented_flyback()
+    b = np.linspace(-0.1, 0.1, N)
+    path = tmp_path / "flyback.npz"
+    np.savez(path, t=t, v=v, i=i, b=b, note=np.array("invented bench data"))
+    cap = read_capture(path)
+    np.testing.assert_array_equal(cap.time, t)
+    np.testing.assert_array_equal(cap.channels["v"], v)
+    np.testing.assert_array_equal(cap.channels["b"], b)
+    assert cap.metadata["note"] == "invented bench data"
+    assert cap.metadata["format"] == "npz"
+    assert cap.columns["time"] == "t"
+
+
+def test_npz_sample_interval_units_and_buffer(tmp_path):
+    _, v, _ = _invented_flyback()
+    buf = io.BytesIO()
+    np.savez(buf, phi=v * 1e3, sample_interval=np.float64(1e-8))
+    buf.seek(0)
+    cap = read_npz_capture(buf, units={"flux": "mWb"})
+    np.testing.assert_allclose(cap.time, np.arange(N) * 1e-8, rtol=1e-15)
+    np.testing.assert_allclose(cap.channels["flux"], v, rtol=4 * np.finfo(float).eps)
+    assert cap.source == "<buffer>"
+
+
+def test_npz_columns_and_time_column(tmp_path):
+    t, v, _ = _invented_flyback()
+    path = tmp_path / "named.npz"
+    np.savez(path, stamp=t * 1e6, winding=v)
+    cap = read_capture(path, time_column="stamp", columns={"v": "winding"}, time_unit="us")
+    np.testing.assert_allclose(cap.time, t, rtol=4 * np.finfo(float).eps, atol=1e-30)
+    with pytest.raises(CaptureError, match="delimiter= does not apply"):
+        read_capture(path, delimiter=",")
+    with pytest.raises(CaptureError, match="no time array"):
+        read_capture(path, columns={"v": "winding"})
