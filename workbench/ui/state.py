@@ -1,0 +1,362 @@
+"""Panel states: what each panel is set to and what it shows, with no widget or bokeh imports.
+
+Each panel's settings are a frozen dataclass in SI units, validated on
+construction (``ValueError`` naming the parameter and the value). A pure
+function turns settings into a *view*: the plotted columns (numpy arrays keyed
+as the panel's ``ColumnDataSource``) and the texts, computed only through the
+library. The widget classes read their controls into settings, call the
+function and copy the view into bokeh; scripts and benchmarks call the
+function directly.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from workbench.analysis import SHAPES, sweep_frequency
+from workbench.analysis.compare import MaterialComparison, compare_materials, skin_knee_frequency
+from workbench.analysis.sweep import FrequencySweep
+from workbench.materials import get_material
+from workbench.units import format_quantity
+
+__all__ = [
+    "FrequencySettings",
+    "FrequencyView",
+    "frequency_view",
+    "ComparisonSettings",
+    "ComparisonView",
+    "comparison_view",
+]
+
+
+def _check_positive(name: str, value) -> float:
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        raise ValueError(f"{name} must be a positive number, got {value!r}") from None
+    if not math.isfinite(x) or x <= 0:
+        raise ValueError(f"{name} must be finite and positive, got {value!r}")
+    return x
+
+
+def _check_common(shape, duty, f_min, f_max, n_points):
+    if shape not in SHAPES:
+        raise ValueError(f"shape must be one of {', '.join(SHAPES)}, got {shape!r}")
+    if not 0.0 < float(duty) < 1.0:
+        raise ValueError(f"duty must lie strictly between 0 and 1, got {duty!r}")
+    lo = _check_positive("f_min", f_min)
+    hi = _check_positive("f_max", f_max)
+    if not lo < hi:
+        raise ValueError(f"f_min must be below f_max, got f_min={f_min!r} Hz and f_max={f_max!r} Hz")
+    if not isinstance(n_points, (int, np.integer)) or not 2 <= n_points <= 20000:
+        raise ValueError(f"n_points must be an integer from 2 to 20000, got {n_points!r}")
+
+
+def _hz(x: float) -> str:
+    return format_quantity(x, "Hz")
+
+
+# ==========================================================================================
+# frequency explorer
+# ==========================================================================================
+@dataclass(frozen=True)
+class FrequencySettings:
+    """Inputs of the frequency explorer (SI units).
+
+    Attributes
+    ----------
+    material : str
+        Library material name.
+    shape : str
+        Waveform shape, one of :data:`workbench.analysis.SHAPES`.
+    duty : float
+        Duty cycle [-] (ignored for the sine).
+    b_peak : float
+        Peak flux density [T].
+    thickness : float or None
+        Lamination thickness [m]; None for the material's.
+    resistivity : float or None
+        Resistivity [ohm m]; None for the material's.
+    skin_effect : bool
+        Skin effect in the classical part.
+    include_excess : bool
+        Whether the crossover counts the excess part as eddy loss.
+    f_min, f_max : float
+        Sweep range [Hz].
+    n_points : int
+        Number of log-spaced frequencies.
+    """
+
+    material: str = "M270-35A"
+    shape: str = "sine"
+    duty: float = 0.5
+    b_peak: float = 1.0
+    thickness: float | None = None
+    resistivity: float | None = None
+    skin_effect: bool = True
+    include_excess: bool = False
+    f_min: float = 10.0
+    f_max: float = 1e6
+    n_points: int = 400
+
+    def __post_init__(self):
+        _check_common(self.shape, self.duty, self.f_min, self.f_max, self.n_points)
+        _check_positive("b_peak", self.b_peak)
+        for name in ("thickness", "resistivity"):
+            if getattr(self, name) is not None:
+                _check_positive(name, getattr(self, name))
+
+    def to_dict(self) -> dict:
+        return {
+            "material": self.material, "shape": self.shape, "duty": self.duty, "b_peak_t": self.b_peak,
+            "thickness_m": self.thickness, "resistivity_ohm_m": self.resistivity, "skin_effect": self.skin_effect,
+            "excess_counted_as_eddy": self.include_excess, "f_min_hz": self.f_min, "f_max_hz": self.f_max,
+            "n_points": self.n_points,
+        }
+
+
+@dataclass(frozen=True)
+class FrequencyView:
+    """What the frequency explorer shows for one set of inputs.
+
+    Attributes
+    ----------
+    settings : FrequencySettings
+        The inputs.
+    sweep : workbench.analysis.FrequencySweep
+        The library's sweep.
+    columns : dict of str to numpy.ndarray
+        Plotted columns: ``freq`` [Hz]; ``hysteresis``, ``classical``, ``excess``,
+        ``total`` (separation sum), ``steinmetz`` (iGSE) [W/m^3]; the same with an
+        ``e_`` prefix as energy per cycle P/f [J/m^3]; ``extrapolated`` (bool).
+        Parts the material lacks are NaN.
+    crossover_freq : float or None
+        Crossover frequency [Hz] (the library's :func:`crossover_frequency`).
+    knee_freq : float or None
+        Skin-effect knee [Hz] (None with the skin effect off).
+    crossover_text, knee_text : str
+        The same in words.
+    warnings : tuple of str
+        Things to check.
+    """
+
+    settings: FrequencySettings
+    sweep: FrequencySweep
+    columns: dict
+    crossover_freq: float | None
+    knee_freq: float | None
+    crossover_text: str
+    knee_text: str
+    warnings: tuple[str, ...] = field(default=())
+
+
+def frequency_view(settings: FrequencySettings) -> FrequencyView:
+    """Compute everything the frequency explorer shows (one refresh).
+
+    Parameters
+    ----------
+    settings : FrequencySettings
+        Inputs.
+
+    Returns
+    -------
+    FrequencyView
+    """
+    s = settings
+    material = get_material(s.material)
+    freqs = np.geomspace(s.f_min, s.f_max, s.n_points)
+    sw = sweep_frequency(material, s.shape, b_peak=s.b_peak, duty=s.duty, freqs=freqs, thickness=s.thickness,
+                         resistivity=s.resistivity, skin_effect=s.skin_effect, include_excess=s.include_excess)
+    nan = np.full(freqs.shape, np.nan)
+    parts = {
+        "hysteresis": nan if sw.hysteresis is None else sw.hysteresis,
+        "classical": sw.classical,
+        "excess": nan if sw.excess is None else sw.excess,
+        "total": nan if sw.separation_total is None else sw.separation_total,
+        "steinmetz": sw.total,
+    }
+    columns = {"freq": freqs}
+    columns.update(parts)
+    columns.update({f"e_{k}": sw.energy_per_cycle(v) for k, v in parts.items()})
+    columns["extrapolated"] = sw.extrapolated
+
+    cx = sw.crossover
+    if cx.freq is not None:
+        crossover_text = f"Crossover at {_hz(cx.freq)}: {cx.message}."
+    else:
+        crossover_text = f"No crossover: {cx.message}."
+    knee = None
+    if s.skin_effect:
+        knee = skin_knee_frequency(sw.resistivity, sw.thickness, material.rel_permeability)
+        knee_text = (f"Skin-effect knee at {_hz(knee)} (thickness = 3 skin depths for mu_r = "
+                     f"{material.rel_permeability:.4g}): above it the classical part grows as f^1.5 instead of f^2.")
+    else:
+        knee_text = "Skin effect off: the classical part follows the thin-sheet law (f^2) at every frequency."
+
+    warnings = []
+    st = material.steinmetz
+    f_lo, f_hi = st.freq_range
+    b_lo, b_hi = st.b_range
+    warnings.append(f"{material.name}: Steinmetz set fitted over {_hz(f_lo)} to {_hz(f_hi)} and "
+                    f"{b_lo:.3g} to {b_hi:.3g} T; grey bands are extrapolated.")
+    if not b_lo <= s.b_peak <= b_hi:
+        warnings.append(f"B_peak {s.b_peak:.3g} T is outside the fitted flux range of {material.name}: every curve is extrapolated.")
+    if s.b_peak > 0.8 * material.b_sat:
+        warnings.append(f"B_peak {s.b_peak:.3g} T is {100 * s.b_peak / material.b_sat:.0f} % of the saturation flux "
+                        f"density of {material.name} ({material.b_sat:.3g} T): loss models lose validity near saturation.")
+    if sw.hysteresis is None:
+        warnings.append(f"{material.name} has no loss-separation set: hysteresis and excess are not drawn and the "
+                        "crossover compares the classical part with the Steinmetz total.")
+    return FrequencyView(s, sw, columns, cx.freq, knee, crossover_text, knee_text, tuple(warnings))
+
+
+# ==========================================================================================
+# material comparison
+# ==========================================================================================
+@dataclass(frozen=True)
+class ComparisonSettings:
+    """Inputs of the material comparison (SI units).
+
+    Attributes
+    ----------
+    materials : tuple of str
+        Library material names.
+    shape : str
+        Waveform shape.
+    duty : float
+        Duty cycle [-].
+    b_peak : float
+        Peak flux of the loss curves [T].
+    loss_density : float
+        Allowed loss density of the f * B_peak curves [W/m^3].
+    design_freq : float
+        Frequency at which the summary table is read [Hz].
+    f_min, f_max : float
+        Sweep range [Hz].
+    n_points : int
+        Number of log-spaced frequencies.
+    """
+
+    materials: tuple[str, ...] = ("M270-35A", "fe-amorphous", "nanocrystalline", "mnzn-power-ferrite")
+    shape: str = "sine"
+    duty: float = 0.5
+    b_peak: float = 0.1
+    loss_density: float = 200e3
+    design_freq: float = 20e3
+    f_min: float = 10.0
+    f_max: float = 1e6
+    n_points: int = 400
+
+    def __post_init__(self):
+        _check_common(self.shape, self.duty, self.f_min, self.f_max, self.n_points)
+        if isinstance(self.materials, str) or not self.materials:
+            raise ValueError(f"materials must be a non-empty sequence of names, got {self.materials!r}")
+        object.__setattr__(self, "materials", tuple(self.materials))
+        _check_positive("b_peak", self.b_peak)
+        _check_positive("loss_density", self.loss_density)
+        _check_positive("design_freq", self.design_freq)
+
+    def to_dict(self) -> dict:
+        return {
+            "materials": list(self.materials), "shape": self.shape, "duty": self.duty, "b_peak_t": self.b_peak,
+            "loss_density_w_m3": self.loss_density, "design_frequency_hz": self.design_freq,
+            "f_min_hz": self.f_min, "f_max_hz": self.f_max, "n_points": self.n_points,
+        }
+
+
+@dataclass(frozen=True)
+class ComparisonView:
+    """What the material comparison shows.
+
+    Attributes
+    ----------
+    settings : ComparisonSettings
+    comparison : workbench.analysis.compare.MaterialComparison
+    loss_lines, loss_lines_extrapolated : dict
+        Multi-line columns (``xs``, ``ys``, ``material``, ``colour``, ``dash``) of the loss
+        curves [Hz, W/m^3], inside and outside the fitted ranges (NaN elsewhere).
+    fb_lines, fb_lines_extrapolated : dict
+        Same for f * B_peak [Hz, Hz T].
+    summary_rows : tuple of dict
+        One row per material at the design frequency (computed there, not read off the grid).
+    best_fb : str or None
+        Material with the largest f * B_peak inside its fitted ranges at the design frequency.
+    notes : tuple of str
+    """
+
+    settings: ComparisonSettings
+    comparison: MaterialComparison
+    loss_lines: dict
+    loss_lines_extrapolated: dict
+    fb_lines: dict
+    fb_lines_extrapolated: dict
+    summary_rows: tuple
+    best_fb: str | None
+    notes: tuple[str, ...]
+
+
+def _split(values: np.ndarray, valid: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Values inside (NaN elsewhere) and outside (NaN elsewhere, joined to the inside at the edges)."""
+    inside = np.where(valid, values, np.nan)
+    out_mask = ~valid
+    joined = out_mask.copy()
+    joined[1:] |= out_mask[:-1]
+    joined[:-1] |= out_mask[1:]
+    outside = np.where(joined, values, np.nan)
+    return inside, outside
+
+
+def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) -> ComparisonView:
+    """Compute everything the material comparison shows (one refresh).
+
+    Parameters
+    ----------
+    settings : ComparisonSettings
+        Inputs.
+    colours, dashes : sequence of str, optional
+        Line colour and dash per material (default all black, solid).
+
+    Returns
+    -------
+    ComparisonView
+    """
+    s = settings
+    mats = [get_material(name) for name in s.materials]
+    freqs = np.geomspace(s.f_min, s.f_max, s.n_points)
+    cmp = compare_materials(mats, s.shape, b_peak=s.b_peak, loss_density=s.loss_density, duty=s.duty, freqs=freqs)
+    n = len(cmp.curves)
+    colours = list(colours) if colours is not None else ["#000000"] * n
+    dashes = list(dashes) if dashes is not None else ["solid"] * n
+    names = [c.material for c in cmp.curves]
+
+    def lines(kind):
+        ins, outs = [], []
+        for c in cmp.curves:
+            values, valid = (c.loss, c.loss_valid) if kind == "loss" else (c.fb, c.fb_valid)
+            a, b = _split(values, valid)
+            ins.append(a)
+            outs.append(b)
+        base = {"material": names, "colour": colours[:n], "dash": dashes[:n]}
+        return ({"xs": [freqs] * n, "ys": ins, **base}, {"xs": [freqs] * n, "ys": outs, **base})
+
+    loss_in, loss_out = lines("loss")
+    fb_in, fb_out = lines("fb")
+    at = compare_materials(mats, s.shape, b_peak=s.b_peak, loss_density=s.loss_density, duty=s.duty,
+                           freqs=np.array([s.design_freq]))
+    rows = []
+    for c in at.curves:
+        rows.append({
+            "material": c.material,
+            "frequency_hz": float(s.design_freq),
+            "loss_w_m3": float(c.loss[0]),
+            "loss_w_kg": float(c.loss_w_kg[0]),
+            "loss_valid": bool(c.loss_valid[0]),
+            "b_peak_at_loss_density_t": float(c.b_usable[0]),
+            "saturation_limited": bool(c.saturation_limited[0]),
+            "f_b_peak_t_hz": float(c.fb[0]),
+            "f_b_peak_valid": bool(c.fb_valid[0]),
+        })
+    best = at.best_at(s.design_freq, by="fb")
+    return ComparisonView(s, cmp, loss_in, loss_out, fb_in, fb_out, tuple(rows), best, cmp.notes)
