@@ -1,5 +1,5 @@
 """Pure loss formulas: loss per unit volume [W/m^3], no I/O, no plotting."""
-from workbench.models.loops import LoopSet, decompose_loops, loop_path_integrals
+from workbench.models.loops import LoopSet, decompose_loops, loop_abs_dbdt_integrals, loop_path_integrals
 from workbench.models.separation import (
     EXCESS_SINE_CONSTANT,
     MU_0,
@@ -43,6 +43,7 @@ __all__ = [
     "igse",
     "igse_coefficient",
     "igse_loops",
+    "loop_abs_dbdt_integrals",
     "loop_path_integrals",
     "mean_abs_cos_power",
     "skin_depth",

@@ -10,7 +10,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import gammaln
 
-from workbench.models.loops import LoopSet, decompose_loops, loop_path_integrals
+from workbench.models.loops import LoopSet, decompose_loops, loop_abs_dbdt_integrals
 from workbench.waveforms import FluxWaveform
 
 __all__ = [
@@ -162,13 +162,6 @@ class IgseResult:
         return self.minor / self.total if self.total > 0 else 0.0
 
 
-def _segment_weight(waveform: FluxWaveform, alpha: float) -> np.ndarray:
-    """|dB/dt|**(alpha-1) per segment, so that weight*|dB| integrates |dB/dt|**alpha dt."""
-    dbdt = np.abs(waveform.segment_increments) / waveform.segment_durations
-    with np.errstate(divide="ignore"):
-        return dbdt ** (alpha - 1.0)
-
-
 def igse_loops(waveform: FluxWaveform, k, alpha, beta, *, minor_loops: bool = True, threshold=None, loops: LoopSet | None = None) -> IgseResult:
     """iGSE with the minor-loop procedure, returning the loss of every loop.
 
@@ -206,19 +199,17 @@ def igse_loops(waveform: FluxWaveform, k, alpha, beta, *, minor_loops: bool = Tr
     if not isinstance(waveform, FluxWaveform):
         raise ValueError(f"waveform must be a FluxWaveform, got {type(waveform).__name__}")
     ki = igse_coefficient(k, alpha, beta)
-    weight = _segment_weight(waveform, alpha)
     if not minor_loops:
         pp = waveform.flux_pp
         if pp == 0:
             return IgseResult(0.0, 0.0, 0.0, np.array([0.0]), np.array([0.0]), 0.0)
-        integral = float(np.dot(weight, np.abs(waveform.segment_increments)))
-        total = ki * pp ** (beta - alpha) * integral / waveform.period
+        total = ki * pp ** (beta - alpha) * waveform.mean_abs_dbdt_power(alpha)
         return IgseResult(total, total, 0.0, np.array([pp]), np.array([total]), 0.0)
     if loops is None:
         loops = decompose_loops(waveform, threshold)
     if loops.flux_pp.size == 0:
         return IgseResult(0.0, 0.0, 0.0, loops.flux_pp, np.zeros(0), loops.threshold)
-    integrals = loop_path_integrals(waveform, loops, weight)
+    integrals = loop_abs_dbdt_integrals(waveform, loops, alpha)
     per_loop = ki * loops.flux_pp ** (beta - alpha) * integrals / waveform.period
     total = float(per_loop.sum())
     return IgseResult(total, float(per_loop[0]), float(per_loop[1:].sum()), loops.flux_pp, per_loop, loops.threshold)
