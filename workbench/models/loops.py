@@ -253,9 +253,9 @@ class _SlopeWeight:
         slope = np.diff(_cyclic(self.b, start, m + 1))
         if start + m + 1 <= n:
             dt = np.diff(self.t[start : start + m + 1])
-        else:
-            tt = np.concatenate((self.t[start:], self.t[: start + m + 1 - n] + self.period))
-            dt = np.diff(tt)
+        else:  # the wrap-around segment lasts period - t[-1]
+            t = self.t
+            dt = np.concatenate((np.diff(t[start:]), [self.period - t[-1]], np.diff(t[: start + m + 1 - n])))
         np.abs(slope, out=slope)
         slope /= dt
         return slope**self.a1
