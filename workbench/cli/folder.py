@@ -1,0 +1,349 @@
+"""``workbench folder DIR``: analyse every capture in a folder, one result row per file.
+
+Examples::
+
+    workbench folder bench/2024-06-11 --turns 20 --area 60mm2 --material mnzn-power-ferrite \\
+        --out results
+    workbench folder bench/run3 --turns 100 --sense-turns 50 --area 2cm2 --path-length 0.25 \\
+        --material M270-35A --out run3 --jobs 2 --resume
+
+Rows are written as each file finishes, to ``OUT.jsonl`` (one JSON object per line) and
+``OUT.csv``; each row is appended with one write, flushed and fsync'ed, so an interrupted
+run leaves only whole rows. A summary goes to ``OUT.summary.json`` (written to a temporary
+name and renamed) and to stdout.
+
+Each row carries a ``key``: the SHA-256 of the file content and of the analysis settings.
+``--resume`` skips files whose key is already in ``OUT.jsonl`` with status ok, so a changed
+file or changed settings are analysed again, and files that failed are tried again. ``--jobs N`` analyses files in N worker processes.
+
+Exit status: 0 when every file was analysed, 1 when some files could not be (their rows
+carry the error), 2 on bad arguments or when the outputs cannot be written (nothing is
+created then).
+"""
+from __future__ import annotations
+
+import argparse
+import csv
+import hashlib
+import io
+import json
+import math
+import os
+import sys
+import tempfile
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass
+from pathlib import Path
+
+from workbench.cli.capture import (
+    CAUTION,
+    add_capture_options,
+    add_model_options,
+    capture_settings,
+    reader_options,
+)
+
+#: Columns of the CSV output, in order (SI units in the names).
+CSV_COLUMNS = (
+    "file", "status", "error", "kind", "frequency_hz", "flux_pp_t", "b_peak_t", "periods_used",
+    "period_spread", "waveform_class", "duty", "loss_w_m3", "hysteresis_w_m3", "classical_w_m3",
+    "excess_w_m3", "measured_loss_w_m3", "measured_to_model_ratio", "skew_sensitivity_per_ns",
+    "reversal_threshold_t", "warnings", "key",
+)
+#: File name patterns analysed by default.
+DEFAULT_PATTERNS = ("*.csv", "*.txt", "*.npz")
+
+
+# ---------------------------------------------------------------------------
+# pure pieces (no I/O beyond reading the one capture)
+# ---------------------------------------------------------------------------
+def settings_payload(args) -> dict:
+    """Analysis settings as plain JSON-able values (material by name), for workers and keys."""
+    return {
+        "geometry": capture_settings(args),
+        "reader": reader_options(args),
+        "material": args.material,
+        "steinmetz": list(args.steinmetz) if args.steinmetz else None,
+        "temperature": args.temperature,
+        "thickness": args.thickness,
+        "resistivity": args.resistivity,
+        "skin_effect": not args.no_skin,
+    }
+
+
+def file_key(path: Path, settings: dict) -> str:
+    """SHA-256 of the file content followed by the canonical JSON of the settings."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    h.update(json.dumps(settings, sort_keys=True).encode())
+    return h.hexdigest()
+
+
+def analyse_one(path: str, settings: dict, key: str) -> dict:
+    """Analyse one file and return its result row; user errors become an error row.
+
+    Runs in a worker process: takes and returns plain data only.
+    """
+    from workbench.analysis.capture import SteinmetzSet, analyse_file
+    from workbench.cli.capture import quantity
+    from workbench.units import parse_quantity
+
+    row = {"file": path, "key": key}
+    try:
+        material = steinmetz = None
+        if settings["material"]:
+            from workbench.materials import get_material
+
+            material = get_material(settings["material"])
+        elif settings["steinmetz"]:
+            steinmetz = SteinmetzSet(*(parse_quantity(x, "", name="--steinmetz") for x in settings["steinmetz"]))
+        result = analyse_file(
+            path, reader_options=settings["reader"], material=material, steinmetz=steinmetz,
+            temperature=quantity(settings["temperature"], "degC", "--temperature", positive=False),
+            thickness=quantity(settings["thickness"], "m", "--thickness"),
+            resistivity=quantity(settings["resistivity"], "ohm m", "--resistivity"),
+            skin_effect=settings["skin_effect"], **settings["geometry"],
+        )
+    except (ValueError, OSError) as exc:
+        text = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        row.update(status="error", error=text)
+        return row
+    row.update(status="ok", error="")
+    row.update(result.to_dict())
+    row["file"] = path
+    return row
+
+
+def csv_line(row: dict) -> str:
+    """One CSV line (with newline) of the fixed columns for a result row."""
+    buf = io.StringIO()
+    values = []
+    for col in CSV_COLUMNS:
+        v = row.get(col)
+        if col == "warnings":
+            v = " | ".join(v or ())
+        elif v is None:
+            v = ""
+        elif isinstance(v, float):
+            v = repr(v)
+        values.append(v)
+    csv.writer(buf, lineterminator="\n").writerow(values)
+    return buf.getvalue()
+
+
+@dataclass
+class RowWriter:
+    """Appends whole rows to the JSON-lines and CSV outputs (append + flush + fsync per row)."""
+
+    jsonl: Path
+    csv_path: Path
+
+    def open(self, *, fresh: bool) -> None:
+        mode = "w" if fresh else "a"
+        self._j = open(self.jsonl, mode, encoding="utf-8")
+        new_csv = fresh or not self.csv_path.exists() or self.csv_path.stat().st_size == 0
+        self._c = open(self.csv_path, mode, encoding="utf-8", newline="")
+        if new_csv:
+            self._write(self._c, csv_line({c: c for c in CSV_COLUMNS}))
+
+    @staticmethod
+    def _write(fh, text: str) -> None:
+        fh.write(text)
+        fh.flush()
+        os.fsync(fh.fileno())
+
+    def add(self, row: dict) -> None:
+        self._write(self._j, json.dumps(row, sort_keys=True, allow_nan=False, default=_jsonable) + "\n")
+        self._write(self._c, csv_line(row))
+
+    def close(self) -> None:
+        for fh in (getattr(self, "_j", None), getattr(self, "_c", None)):
+            if fh is not None:
+                fh.close()
+
+
+def _jsonable(value):
+    if hasattr(value, "tolist"):
+        return value.tolist()
+    raise TypeError(f"not JSON serialisable: {type(value).__name__}")
+
+
+def done_keys(jsonl: Path) -> set[str]:
+    """Keys of the complete, successful rows of an earlier run (a torn last line is ignored)."""
+    keys = set()
+    if not jsonl.exists():
+        return keys
+    with open(jsonl, encoding="utf-8") as fh:
+        for line in fh:
+            if not line.endswith("\n"):
+                break
+            try:
+                row = json.loads(line)
+            except json.JSONDecodeError:
+                continue
+            if row.get("status") == "ok" and row.get("key"):
+                keys.add(row["key"])
+    return keys
+
+
+def _trim_torn_line(path: Path) -> None:
+    """Drop an incomplete last line (a run killed mid-write) so appends start on a new line."""
+    if not path.exists() or path.stat().st_size == 0:
+        return
+    with open(path, "rb+") as fh:
+        data = fh.read()
+        if data.endswith(b"\n"):
+            return
+        cut = data.rfind(b"\n") + 1
+        fh.truncate(cut)
+
+
+def _write_atomic(path: Path, text: str) -> None:
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def summarise(rows: list[dict], skipped: int) -> dict:
+    """Counts and the range of the model and measured loss over the successful rows."""
+    ok = [r for r in rows if r.get("status") == "ok"]
+    out = {"files_analysed": len(ok), "files_failed": len(rows) - len(ok), "files_skipped": skipped,
+           "failed": [{"file": r["file"], "error": r["error"]} for r in rows if r.get("status") != "ok"]}
+    for key in ("loss_w_m3", "measured_loss_w_m3"):
+        vals = [r[key] for r in ok if isinstance(r.get(key), (int, float)) and math.isfinite(r[key])]
+        if vals:
+            out[f"{key}_min"] = min(vals)
+            out[f"{key}_max"] = max(vals)
+    return out
+
+
+# ---------------------------------------------------------------------------
+def register(subparsers) -> argparse.ArgumentParser:
+    """Add the ``folder`` sub-command."""
+    p = subparsers.add_parser(
+        "folder",
+        help="analyse every capture in a folder; one result row per file (JSON lines + CSV)",
+        description=(
+            "Analyse every capture file in a folder with the same core, windings and model. Rows "
+            "are written as each file finishes; --resume skips files already done with the same "
+            "content and settings. " + CAUTION
+        ),
+    )
+    p.add_argument("folder", metavar="DIR", help="folder of capture files")
+    p.add_argument("--out", required=True, metavar="STEM",
+                   help="output path without extension: writes STEM.jsonl, STEM.csv, STEM.summary.json")
+    p.add_argument("--pattern", action="append", metavar="GLOB",
+                   help=f"file name pattern, repeatable (default {' '.join(DEFAULT_PATTERNS)})")
+    p.add_argument("--jobs", default="1", help="worker processes (default 1)")
+    p.add_argument("--resume", action="store_true", help="append to existing outputs, skipping files already done")
+    p.add_argument("--overwrite", action="store_true", help="replace existing outputs")
+    add_capture_options(p)
+    add_model_options(p)
+    p.add_argument("--json", action="store_true", help="print the summary as JSON (SI units)")
+    p.set_defaults(func=run)
+    return p
+
+
+def _files(folder: Path, patterns) -> list[Path]:
+    found = set()
+    for pat in patterns:
+        found.update(q for q in folder.glob(pat) if q.is_file())
+    return sorted(found)
+
+
+def run(args) -> int:
+    """Run ``workbench folder``; returns the exit status."""
+    from workbench.cli.main import emit_json
+
+    folder = Path(args.folder)
+    if not folder.is_dir():
+        raise ValueError(f"{args.folder}: not a folder")
+    try:
+        jobs = int(args.jobs)
+    except ValueError:
+        raise ValueError(f"--jobs: expected a whole number, got {args.jobs!r}") from None
+    if not 1 <= jobs <= 256:
+        raise ValueError(f"--jobs: must be between 1 and 256, got {args.jobs!r}")
+    if args.resume and args.overwrite:
+        raise ValueError("--resume and --overwrite exclude each other")
+    stem = Path(args.out)
+    out_dir = stem.parent if str(stem.parent) else Path(".")
+    if not out_dir.is_dir():
+        raise ValueError(f"--out: folder {str(out_dir)!r} does not exist")
+    if not os.access(out_dir, os.W_OK):
+        raise ValueError(f"--out: folder {str(out_dir)!r} is not writable")
+    jsonl, csv_path, summary_path = (Path(f"{stem}{ext}") for ext in (".jsonl", ".csv", ".summary.json"))
+    existing = [q for q in (jsonl, csv_path) if q.exists()]
+    if existing and not (args.resume or args.overwrite):
+        raise ValueError(f"--out: {existing[0]} exists; pass --resume to continue it or --overwrite to replace it")
+
+    settings = settings_payload(args)  # validates every option before anything is written
+    if args.material:
+        from workbench.materials import get_material
+
+        get_material(args.material)
+    patterns = args.pattern or DEFAULT_PATTERNS
+    files = [q for q in _files(folder, patterns) if q.resolve() not in {jsonl.resolve(), csv_path.resolve()}]
+    if not files:
+        raise ValueError(f"{args.folder}: no capture files matching {' '.join(patterns)}")
+
+    done = done_keys(jsonl) if args.resume else set()
+    todo, skipped = [], 0
+    for q in files:
+        key = file_key(q, settings)
+        if key in done:
+            skipped += 1
+        else:
+            todo.append((str(q), key))
+
+    if args.resume:
+        _trim_torn_line(jsonl)
+        _trim_torn_line(csv_path)
+    writer = RowWriter(jsonl, csv_path)
+    writer.open(fresh=not args.resume)
+    rows: list[dict] = []
+    try:
+        if jobs == 1:
+            for path, key in todo:
+                row = analyse_one(path, settings, key)
+                writer.add(row)
+                rows.append(row)
+        else:
+            with ProcessPoolExecutor(max_workers=jobs) as pool:
+                futures = [pool.submit(analyse_one, path, settings, key) for path, key in todo]
+                for fut in as_completed(futures):
+                    row = fut.result()
+                    writer.add(row)
+                    rows.append(row)
+    finally:
+        writer.close()
+    summary = summarise(rows, skipped)
+    summary.update(outputs={"jsonl": str(jsonl), "csv": str(csv_path), "summary": str(summary_path)})
+    _write_atomic(summary_path, json.dumps(summary, indent=2, sort_keys=True) + "\n")
+    if args.json:
+        emit_json(summary)
+    else:
+        print(f"analysed {summary['files_analysed']} file(s), {summary['files_failed']} failed, "
+              f"{skipped} skipped (already done)")
+        for key, label in (("loss_w_m3", "model loss"), ("measured_loss_w_m3", "measured loss")):
+            if f"{key}_min" in summary:
+                print(f"{label}: {summary[key + '_min']:.4g} to {summary[key + '_max']:.4g} W/m3")
+        print(f"rows: {jsonl} and {csv_path}; summary: {summary_path}")
+        print(CAUTION)
+    if summary["files_failed"]:
+        first = summary["failed"][0]
+        sys.stderr.write(
+            f"workbench folder: {summary['files_failed']} file(s) could not be analysed; first: {first['error']}\n"
+        )
+        return 1
+    return 0
