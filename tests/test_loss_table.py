@@ -173,8 +173,8 @@ def test_missing_columns_and_empty_files(tmp_path):
         read_loss_table(_write(tmp_path, "freq (Hz), b_peak (T), b_pp (T), loss (W/m3)\n50, 1, 2, 3\n"))
 
 
-def test_missing_file_is_an_oserror(tmp_path):
-    with pytest.raises(OSError):
+def test_missing_file_is_a_clear_error(tmp_path):
+    with pytest.raises(ValueError, match=r"absent\.csv: cannot read the loss table: No such file"):
         read_loss_table(tmp_path / "absent.csv")
 
 

@@ -763,6 +763,17 @@ class SteinmetzBands:
                 out[m] = fit.loss(f[m], b[m], temperature)
         return float(out) if out.ndim == 0 else out
 
+    def table_loss(self, table: LossTable) -> np.ndarray:
+        """Model loss [W/m^3] at every row of a table, each row with its frequency band's set."""
+        _check_table(table)
+        idx = self.band_index(table.freq)
+        out = np.empty(len(table))
+        for i, fit in enumerate(self.bands):
+            m = idx == i
+            if m.any():
+                out[m] = fit.table_loss(table.subset(m))
+        return out
+
     def to_dict(self) -> dict:
         return _clean({
             "split": self.split, "tolerance": self.tolerance, "tolerance_met": self.tolerance_met,
@@ -949,6 +960,14 @@ class SeparationFit:
         c = np.pi**2 * self.thickness**2 * f**2 * b**2 / (6 * self.resistivity)
         e = self.k_excess * EXCESS_SINE_CONSTANT * (f * b) ** 1.5
         return {"hysteresis": h, "classical": c, "excess": e, "total": h + c + e}
+
+    def table_loss(self, table: LossTable) -> np.ndarray:
+        """Model loss [W/m^3] at every row of a table, each row with its waveform constants."""
+        _check_table(table)
+        f, b = table.freq, table.b_peak
+        c2, c15 = separation_shape_constants(table.shape, table.duty)
+        return (self.k_hyst * f * b**self.beta_hyst + self.thickness**2 / (12 * self.resistivity) * c2 * (f * b) ** 2
+                + self.k_excess * c15 * (f * b) ** 1.5)
 
     @property
     def params(self):
@@ -1191,6 +1210,15 @@ class TwoFrequencyFit:
     @property
     def crossover_hz(self) -> float:
         return self.level.crossover_hz
+
+    def table_loss(self, table: LossTable) -> np.ndarray:
+        """(W_h + s f) f [W/m^3] at the rows used by a level (matched by file row), NaN elsewhere."""
+        _check_table(table)
+        out = np.full(len(table), np.nan)
+        for lv in self.levels:
+            m = np.isin(table.rows, lv.rows) & table.is_sine
+            out[m] = (lv.hysteresis_energy + lv.eddy_slope * table.freq[m]) * table.freq[m]
+        return out
 
     def to_dict(self) -> dict:
         out = {"model": "two-frequency", **self.level.to_dict(),

@@ -272,6 +272,8 @@ def _read_text(path_or_buffer) -> tuple[str, str]:
             text = path.read_text(encoding="utf-8-sig")
         except UnicodeDecodeError as exc:
             raise ValueError(f"{path}: not a UTF-8 text file ({exc.reason} at byte {exc.start})") from None
+        except OSError as exc:
+            raise ValueError(f"{path}: cannot read the loss table: {exc.strerror or exc}") from None
         return text, str(path)
     if hasattr(path_or_buffer, "read"):
         text = path_or_buffer.read()
