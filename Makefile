@@ -17,7 +17,7 @@ lab: $(STAMP)
 	$(PY) -m workbench.launch
 
 test: $(STAMP)
-	$(PY) -m pytest --nbval-lax --nbval-current-env -p no:cacheprovider
+	$(PY) -m pytest --nbval-lax --nbval-current-env --nbval-sanitize-with notebooks/sanitize.cfg -p no:cacheprovider
 
 bench: $(STAMP)
 	$(PY) benchmarks/run.py --quick
