@@ -37,7 +37,7 @@ def _as_positive(value, name: str) -> float:
     except (TypeError, ValueError):
         raise ValueError(f"{name} must be a number, got {value!r}") from None
     if not np.isfinite(x) or x <= 0:
-        raise ValueError(f"{name} must be a finite positive number, got {value!r}")
+        raise ValueError(f"{name} must be a finite positive number, got {x!r}")
     return x
 
 
@@ -49,7 +49,7 @@ def _as_fraction(value, name: str, *, allow_one: bool = False) -> float:
     upper_ok = x <= 1 if allow_one else x < 1
     if not (np.isfinite(x) and x > 0 and upper_ok):
         bound = "(0, 1]" if allow_one else "(0, 1)"
-        raise ValueError(f"{name} must lie in {bound}, got {value!r}")
+        raise ValueError(f"{name} must lie in {bound}, got {x!r}")
     return x
 
 
@@ -107,20 +107,20 @@ class FluxWaveform:
             raise ValueError(f"a waveform needs at least 2 samples, got {t.size}")
         bad = ~np.isfinite(t)
         if bad.any():
-            raise ValueError(f"t has a non-finite value at index {int(np.argmax(bad))}: {t[bad][0]!r}")
+            raise ValueError(f"t has a non-finite value at index {int(np.argmax(bad))}: {float(t[bad][0])!r}")
         bad = ~np.isfinite(b)
         if bad.any():
-            raise ValueError(f"b has a non-finite value at index {int(np.argmax(bad))}: {b[bad][0]!r}")
+            raise ValueError(f"b has a non-finite value at index {int(np.argmax(bad))}: {float(b[bad][0])!r}")
         steps = np.diff(t)
         if (steps <= 0).any():
             i = int(np.argmax(steps <= 0))
             raise ValueError(
-                f"t must be strictly increasing; t[{i + 1}] = {t[i + 1]!r} follows t[{i}] = {t[i]!r}"
+                f"t must be strictly increasing; t[{i + 1}] = {float(t[i + 1])!r} follows t[{i}] = {float(t[i])!r}"
             )
         t = t - t[0]
         if t[-1] >= period * (1 - 1e-12):
             raise ValueError(
-                f"period ({period!r} s) must be longer than the sampled span ({t[-1]!r} s)"
+                f"period ({period!r} s) must be longer than the sampled span ({float(t[-1])!r} s)"
             )
         t.setflags(write=False)
         b.setflags(write=False)
@@ -207,12 +207,25 @@ class FluxWaveform:
         return FluxWaveform(t_new, np.interp(t_new, tp, bp), self.period)
 
     def shifted(self, delay: float) -> "FluxWaveform":
-        """Return B(t - delay), rotated within the period (same sample positions in phase)."""
-        tau = np.mod(self.t + float(delay), self.period)
+        """Return B(t - delay), rotated within the period [s].
+
+        The samples move with the waveform; where no sample lands on t = 0 one
+        is added there (linear interpolation, exact for piecewise-linear flux).
+        """
+        delay = float(delay)
+        if not np.isfinite(delay):
+            raise ValueError(f"delay must be finite, got {delay!r}")
+        tau = np.mod(self.t + delay, self.period)
+        tau[tau >= self.period * (1 - 1e-12)] = 0.0
         order = np.argsort(tau, kind="stable")
         tau = tau[order]
         b = self.b[order]
-        return FluxWaveform(tau - tau[0], b, self.period)
+        if tau[0] > 0:
+            phase0 = np.mod(-delay, self.period)
+            b0 = np.interp(phase0, np.append(self.t, self.period), np.append(self.b, self.b[0]))
+            tau = np.concatenate(([0.0], tau))
+            b = np.concatenate(([b0], b))
+        return FluxWaveform(tau, b, self.period)
 
     def scaled(self, factor: float) -> "FluxWaveform":
         """Return the waveform with B multiplied by ``factor`` (negative flips polarity)."""
@@ -528,7 +541,7 @@ def reversal_indices(b, threshold: float | None = None) -> np.ndarray:
         raise ValueError(f"b must be a 1-D array of at least 2 samples, got shape {b.shape}")
     if not np.isfinite(b).all():
         i = int(np.argmax(~np.isfinite(b)))
-        raise ValueError(f"b has a non-finite value at index {i}: {b[i]!r}")
+        raise ValueError(f"b has a non-finite value at index {i}: {float(b[i])!r}")
     return _reversals(b, threshold)[0]
 
 
@@ -770,12 +783,12 @@ def from_samples(t, b, *, freq: float | None = None, samples: int | None = None)
         bad = ~np.isfinite(arr)
         if bad.any():
             i = int(np.argmax(bad))
-            raise ValueError(f"{name} has a non-finite value at index {i}: {arr[i]!r}")
+            raise ValueError(f"{name} has a non-finite value at index {i}: {float(arr[i])!r}")
     steps = np.diff(t)
     if (steps <= 0).any():
         i = int(np.argmax(steps <= 0))
         kind = "duplicate" if steps[i] == 0 else "decreasing"
-        raise ValueError(f"t must be strictly increasing; {kind} time stamp at index {i + 1}: {t[i + 1]!r}")
+        raise ValueError(f"t must be strictly increasing; {kind} time stamp at index {i + 1}: {float(t[i + 1])!r}")
     if freq is None:
         period = (t[-1] - t[0]) + steps[-1]
         return FluxWaveform(t - t[0], b, period)
@@ -857,11 +870,16 @@ def from_voltage(t, v, *, turns: float, area: float, freq: float | None = None, 
         raise ValueError(f"t and v must have the same length, got {t.size} and {v.size}")
     if t.size < 3:
         raise ValueError(f"from_voltage needs at least 3 samples, got {t.size}")
-    if not (np.isfinite(t).all() and np.isfinite(v).all()):
-        raise ValueError("t and v must be finite")
-    if (np.diff(t) <= 0).any():
-        i = int(np.argmax(np.diff(t) <= 0))
-        raise ValueError(f"t must be strictly increasing; problem at index {i + 1}: {t[i + 1]!r}")
+    for name, arr in (("t", t), ("v", v)):
+        bad = ~np.isfinite(arr)
+        if bad.any():
+            i = int(np.argmax(bad))
+            raise ValueError(f"{name} has a non-finite value at index {i}: {float(arr[i])!r}")
+    steps = np.diff(t)
+    if (steps <= 0).any():
+        i = int(np.argmax(steps <= 0))
+        kind = "duplicate" if steps[i] == 0 else "decreasing"
+        raise ValueError(f"t must be strictly increasing; {kind} time stamp at index {i + 1}: {float(t[i + 1])!r}")
     if freq is not None:
         period = 1.0 / _as_positive(freq, "freq")
         step = np.median(np.diff(t))
@@ -872,5 +890,10 @@ def from_voltage(t, v, *, turns: float, area: float, freq: float | None = None, 
         t, v = t[keep], v[keep]
         b = integrate_voltage(t, v, turns=turns, area=area)
         return from_samples(t, b, freq=freq, samples=samples)
-    b = integrate_voltage(t, v, turns=turns, area=area)
-    return from_samples(t, b)
+    # one period: close it on the first sample one step later, so that the
+    # integral runs over the whole period including the wrap-around step
+    step = t[-1] - t[-2]
+    tc = np.append(t, t[-1] + step)
+    vc = np.append(v, v[0])
+    b = integrate_voltage(tc, vc, turns=turns, area=area)[:-1]
+    return from_samples(t, b - np.mean(b))
