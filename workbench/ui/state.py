@@ -28,6 +28,10 @@ __all__ = [
     "ComparisonSettings",
     "ComparisonView",
     "comparison_view",
+    "CaptureSettings",
+    "CaptureView",
+    "capture_view",
+    "capture_presets",
 ]
 
 
@@ -360,3 +364,170 @@ def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) 
         })
     best = at.best_at(s.design_freq, by="fb")
     return ComparisonView(s, cmp, loss_in, loss_out, fb_in, fb_out, tuple(rows), best, cmp.notes)
+
+
+# ==========================================================================================
+# capture analysis
+# ==========================================================================================
+#: Options of a demo file's ``analyse with:`` metadata line -> CaptureSettings field.
+_PRESET_OPTIONS = {"--turns": "turns", "--sense-turns": "sense_turns", "--area": "area", "--volume": "volume",
+                   "--path-length": "path_length", "--material": "material"}
+
+
+def capture_presets(metadata) -> dict:
+    """Geometry and material a capture file suggests for itself, as typed (not parsed).
+
+    Parameters
+    ----------
+    metadata : Mapping[str, str]
+        Reader metadata; the ``analyse with`` entry holds ``--turns 20 --area 60mm2 ...``.
+
+    Returns
+    -------
+    dict
+        CaptureSettings field name -> text, for the options present.
+    """
+    text = str(dict(metadata).get("analyse with", ""))
+    tokens = text.split()
+    out = {}
+    for key, value in zip(tokens, tokens[1:]):
+        if key in _PRESET_OPTIONS and not value.startswith("--"):
+            out[_PRESET_OPTIONS[key]] = value
+    return out
+
+
+@dataclass(frozen=True)
+class CaptureSettings:
+    """Inputs of the capture panel besides the capture itself (SI units; None = not given).
+
+    Attributes
+    ----------
+    turns : float or None
+        Turns N1 of the winding the voltage (or the current, two-winding) is on [-].
+    sense_turns : float or None
+        Turns N2 of the sense winding [-]; default ``turns``.
+    area : float or None
+        Effective cross-section A_e [m^2].
+    volume : float or None
+        Effective volume V_e [m^3]; default ``area * path_length``.
+    path_length : float or None
+        Effective path length l_e [m].
+    material : str or None
+        Library material for the model loss.
+    temperature : float or None
+        Core temperature [degC].
+    """
+
+    turns: float | None = None
+    sense_turns: float | None = None
+    area: float | None = None
+    volume: float | None = None
+    path_length: float | None = None
+    material: str | None = None
+    temperature: float | None = None
+
+    def __post_init__(self):
+        for name in ("turns", "sense_turns", "area", "volume", "path_length"):
+            if getattr(self, name) is not None:
+                _check_positive(name, getattr(self, name))
+        if self.temperature is not None and not math.isfinite(float(self.temperature)):
+            raise ValueError(f"temperature must be finite, got {self.temperature!r}")
+
+    @property
+    def effective_volume(self) -> float | None:
+        """V_e [m^3]: the volume given, else area * path length, else None."""
+        if self.volume is not None:
+            return self.volume
+        if self.area is not None and self.path_length is not None:
+            return self.area * self.path_length
+        return None
+
+    def to_dict(self) -> dict:
+        return {"turns": self.turns, "sense_turns": self.sense_turns, "area_m2": self.area, "volume_m3": self.volume,
+                "path_length_m": self.path_length, "material": self.material, "temperature_c": self.temperature}
+
+
+@dataclass(frozen=True)
+class CaptureView:
+    """What the capture panel shows.
+
+    Attributes
+    ----------
+    settings : CaptureSettings
+    analysis : workbench.analysis.capture.CaptureAnalysis
+        The library's result.
+    period : dict of str to numpy.ndarray
+        One averaged period, closed at t = T: ``t`` [s], ``t_display`` (in ``time_unit``),
+        ``b`` [T], ``dbdt`` [T/s] (slope of the segment starting at each sample), ``h`` [A/m]
+        (NaN without a current channel).
+    time_unit : str
+        ``"ms"`` or ``"µs"``.
+    has_loop : bool
+        Whether a B-H loop exists.
+    loss_rows : tuple of (str, float, float or None, float or None)
+        (part, W/m^3, W/kg, W in the core) rows: separation parts, model total, measured.
+    summary : str
+        Frequency, periods used, spread, waveform class in words.
+    """
+
+    settings: CaptureSettings
+    analysis: object
+    period: dict
+    time_unit: str
+    has_loop: bool
+    loss_rows: tuple
+    summary: str
+
+
+def capture_view(data, settings: CaptureSettings) -> CaptureView:
+    """Analyse a capture through :func:`workbench.analysis.capture.analyse_capture` and lay out what to show.
+
+    Parameters
+    ----------
+    data : workbench.capture.CaptureData
+        The capture as read.
+    settings : CaptureSettings
+        Geometry and material.
+
+    Returns
+    -------
+    CaptureView
+    """
+    from workbench.analysis.capture import analyse_capture
+
+    s = settings
+    material = get_material(s.material) if s.material else None
+    a = analyse_capture(data, turns=s.turns, sense_turns=s.sense_turns, area=s.area, volume=s.volume,
+                        path_length=s.path_length, material=material, temperature=s.temperature)
+    w = a.waveform
+    t = np.append(w.t, w.period)
+    b = np.append(w.b, w.b[0])
+    slopes = w.dbdt()
+    dbdt = np.append(slopes, slopes[0])
+    h = np.full(t.shape, np.nan) if a.h is None else np.append(a.h, a.h[0])
+    scale, unit = (1e3, "ms") if w.period >= 2e-3 else (1e6, "µs")
+    period = {"t": t, "t_display": t * scale, "b": b, "dbdt": dbdt, "h": h}
+    density = material.density if material is not None else None
+    volume = a.volume if a.volume is not None else s.effective_volume
+
+    def row(label, value):
+        if value is None:
+            return None
+        return (label, float(value), None if density is None else float(value) / density,
+                None if volume is None else float(value) * volume)
+
+    rows = [row("hysteresis", a.hysteresis), row("classical eddy", a.classical), row("excess", a.excess)]
+    if a.hysteresis is not None and a.classical is not None and a.excess is not None:
+        rows.append(row("sum of the three parts", a.hysteresis + a.classical + a.excess))
+    if a.model_loss is not None:
+        label = f"{a.model.total_model if a.model is not None else 'iGSE'} prediction ({a.model_name})"
+        rows.append(row(label, a.model_loss))
+    if a.measured_loss is not None:
+        rows.append(row("measured (two-winding)", a.measured_loss))
+    summary = (f"Detected frequency {_hz(a.freq)}; {a.periods_used} whole periods averaged of "
+               f"{a.periods_in_record:.3g} in the record (period-to-period spread {100 * a.spread:.2g} %); "
+               f"B_peak {a.b_peak * 1e3:.4g} mT, B_dc {w.b_dc * 1e3 + 0.0:.2f} mT; {a.waveform_class} waveform, "
+               f"flux rising for {100 * a.duty:.3g} % of the period; flux from {a.kind} channel(s).")
+    if a.ratio is not None:
+        summary += f" Measured / predicted = {a.ratio:.3g}."
+    return CaptureView(s, a, period, unit, a.h is not None, tuple(r for r in rows if r is not None), summary)

@@ -1,0 +1,280 @@
+"""Capture panel: one averaged period of a captured waveform, its B-H loop and the loss breakdown."""
+from __future__ import annotations
+
+import dataclasses
+import html
+import io
+from pathlib import Path
+
+import ipywidgets as widgets
+import numpy as np
+from bokeh.layouts import column
+from bokeh.models import ColumnDataSource, HoverTool, Label
+from jupyter_bokeh import BokehModel
+
+import workbench
+from workbench.capture import read_capture
+from workbench.materials import list_materials
+from workbench.ui.base import PanelBase
+from workbench.ui.controls import ExportBar, QuantityText, caution_widget, heading
+from workbench.ui.state import CaptureSettings, CaptureView, capture_presets, capture_view
+from workbench.ui.style import FONT, ROLE_COLOURS, new_figure, style_figure
+
+__all__ = ["CapturePanel", "demo_capture_folder", "demo_captures"]
+
+_NO_MODEL = "(no model)"
+_UPLOAD_PREFIX = "uploaded: "
+_BOX = {"style": {"description_width": "190px"}, "layout": widgets.Layout(width="360px")}
+
+
+def demo_capture_folder() -> Path:
+    """Folder of the bundled demo captures (``data/captures`` of a source checkout)."""
+    return Path(workbench.__file__).resolve().parents[1] / "data" / "captures"
+
+
+def demo_captures() -> list[str]:
+    """File names of the bundled demo captures (invented data), sorted."""
+    folder = demo_capture_folder()
+    if not folder.is_dir():
+        return []
+    return sorted(p.name for p in folder.iterdir() if p.suffix.lower() in (".csv", ".npz"))
+
+
+class CapturePanel(PanelBase):
+    """A captured converter waveform: averaged period, B-H loop, detected frequency, loss breakdown.
+
+    Parameters
+    ----------
+    capture : str, optional
+        File name of a bundled demo capture (see :func:`demo_captures`) to load at start;
+        default the two-winding demo (it has a B-H loop and a measured loss). Its ``analyse with`` line fills the geometry boxes.
+    turns, sense_turns, area, volume, path_length : str, optional
+        Geometry as typed (``"20"``, ``"60 mm2"``, ``"4.2 cm3"``, ``"70 mm"``); given
+        values override the capture's suggestions.
+    material : str, optional
+        Library material for the prediction.
+
+    Attributes
+    ----------
+    widget : ipywidgets.VBox
+        Display this.
+    controls : types.SimpleNamespace
+        ``capture, turns, sense_turns, area, volume, path_length, material, temperature``.
+    upload : ipywidgets.FileUpload
+        Loads a CSV or .npz capture of one's own (live sessions only).
+    source : bokeh.models.ColumnDataSource
+        The averaged period (see :class:`workbench.ui.state.CaptureView`).
+    view : workbench.ui.state.CaptureView
+        Last result; ``view.analysis`` is the library's CaptureAnalysis.
+    flux_figure, dbdt_figure, loop_figure : bokeh.plotting.figure
+        Named ``"capture_flux"``, ``"capture_dbdt"``, ``"capture_bh_loop"``.
+    """
+
+    kind = "capture-analysis"
+    export_stem = "capture-analysis"
+    title = "Captured waveform"
+
+    def __init__(self, capture: str | None = None, *, turns: str | None = None, sense_turns: str | None = None,
+                 area: str | None = None, volume: str | None = None, path_length: str | None = None,
+                 material: str | None = None):
+        super().__init__()
+        self._captures = {}  # dropdown key -> CaptureData (read once)
+        demos = demo_captures()
+        options = list(demos) or ["(no demo captures found)"]
+        preferred = "inverter_pwm_sisteel_50hz.csv"  # two-winding: B-H loop and measured loss
+        start = capture or (preferred if preferred in demos else (demos[0] if demos else options[0]))
+        if demos and start not in demos:
+            raise ValueError(f"capture {start!r} is not a bundled demo capture; available: {', '.join(demos)}")
+        c = self.controls
+        c.capture = widgets.Dropdown(options=options, value=start, description="capture (invented demos)", **_BOX)
+        c.capture.layout = widgets.Layout(width="560px")
+        c.turns = QuantityText("", unit="", name="turns N1", description="turns N1 [-]", **_BOX)
+        c.sense_turns = QuantityText("", unit="", name="sense turns N2", description="sense turns N2 [-] (optional)",
+                                     **_BOX)
+        c.area = QuantityText("", unit="m2", name="core area A_e", description="core area A_e [e.g. 25 mm2]", **_BOX)
+        c.volume = QuantityText("", unit="m3", name="core volume V_e",
+                                description="volume V_e [e.g. 3.2 cm3] (optional)", **_BOX)
+        c.path_length = QuantityText("", unit="m", name="path length l_e", description="path length l_e [e.g. 70 mm]",
+                                     **_BOX)
+        c.material = widgets.Dropdown(options=[_NO_MODEL, *list_materials()], value=_NO_MODEL, description="material",
+                                      **_BOX)
+        c.temperature = QuantityText("", unit="degC", name="core temperature",
+                                     description="core temperature [°C] (optional)", **_BOX)
+        self.upload = widgets.FileUpload(accept=".csv,.txt,.npz", multiple=False, description="Upload capture")
+
+        self.source = ColumnDataSource(data={"t": [], "t_display": [], "b": [], "dbdt": [], "h": []})
+        self._build_figures()
+        self.summary_html = widgets.HTML()
+        self.loss_html = widgets.HTML()
+        self.warnings_html = widgets.HTML()
+        self.export_bar = ExportBar(self.export, self.report_error, stem=self.export_stem)
+        self.view: CaptureView | None = None
+
+        c.capture.observe(self._capture_changed, names="value")
+        self.upload.observe(self._uploaded, names="value")
+        self._wire(skip=("capture",))
+        self.widget = widgets.VBox([
+            heading("Captured waveform",
+                    "One averaged period of flux, the B-H loop and where the loss goes; measured against predicted."),
+            widgets.HBox([c.capture, self.upload]),
+            widgets.HBox([widgets.VBox([c.turns, c.sense_turns, c.area, c.volume]),
+                          widgets.VBox([c.path_length, c.material, c.temperature])]),
+            self.summary_html,
+            self.loss_html,
+            BokehModel(self.plots),
+            self.warnings_html,
+            self.export_bar.widget,
+            caution_widget(),
+            self.errors,
+        ])
+        overrides = {"turns": turns, "sense_turns": sense_turns, "area": area, "volume": volume,
+                     "path_length": path_length, "material": material}
+        with self.hold():
+            if demos:
+                self._apply_presets(start)
+            for name, value in overrides.items():
+                if value is not None:
+                    getattr(c, name).value = value
+            self._pending = True
+
+    # -- figures -------------------------------------------------------------------------
+    def _build_figures(self):
+        src = self.source
+        self.flux_figure = f1 = new_figure("capture_flux", title="Flux density over one averaged period",
+                                           x_label="time [ms]", y_label="flux density B [T]", height=300)
+        self.dbdt_figure = f2 = new_figure("capture_dbdt", title="Rate of change of flux density",
+                                           x_label="time [ms]", y_label="dB/dt [T/s]", height=260)
+        f2.x_range = f1.x_range
+        r1 = f1.line("t_display", "b", source=src, color=ROLE_COLOURS["signal"], line_width=3)
+        r2 = f2.step("t_display", "dbdt", source=src, mode="after", color=ROLE_COLOURS["derivative"], line_width=2.5)
+        f1.add_tools(HoverTool(renderers=[r1], mode="vline", tooltips=[("t", "@t_display{0.000}"), ("B", "@b{0.0000} T")]))
+        f2.add_tools(HoverTool(renderers=[r2], mode="vline",
+                               tooltips=[("t", "@t_display{0.000}"), ("dB/dt", "@dbdt{0.000a} T/s")]))
+        self.loop_figure = f3 = new_figure("capture_bh_loop", title="B-H loop", x_label="field strength H [A/m]",
+                                           y_label="flux density B [T]", width=560, height=460)
+        r3 = f3.line("h", "b", source=src, color=ROLE_COLOURS["signal"], line_width=3)
+        f3.add_tools(HoverTool(renderers=[r3], tooltips=[("H", "@h{0.0} A/m"), ("B", "@b{0.0000} T")]))
+        self.no_loop_label = Label(x=20, y=200, x_units="screen", y_units="screen", text_font_size=FONT["label"],
+                                   text="No current channel (or no path length): no B-H loop", visible=False)
+        f3.add_layout(self.no_loop_label)
+        for f in (f1, f2, f3):
+            style_figure(f, legend=False)
+        self.plots = column(f1, f2, f3, name="capture_plots")
+
+    # -- captures ------------------------------------------------------------------------
+    def _data(self, key: str):
+        if key not in self._captures:
+            if key.startswith(_UPLOAD_PREFIX):
+                raise ValueError(f"the uploaded capture {key!r} is no longer in memory; upload it again")
+            path = demo_capture_folder() / key
+            if not path.is_file():
+                raise ValueError(f"capture: no demo capture named {key!r} in {demo_capture_folder()}")
+            self._captures[key] = read_capture(path)
+        return self._captures[key]
+
+    def _apply_presets(self, key: str):
+        presets = capture_presets(self._data(key).metadata)
+        for name in ("turns", "sense_turns", "area", "volume", "path_length"):
+            getattr(self.controls, name).value = presets.get(name, "")
+        if "material" in presets and presets["material"] in self.controls.material.options:
+            self.controls.material.value = presets["material"]
+
+    def _capture_changed(self, change):
+        try:
+            with self.hold():
+                if not str(change["new"]).startswith(_UPLOAD_PREFIX):
+                    self._apply_presets(change["new"])
+                self._pending = True
+        except Exception as exc:  # shown in the panel, never swallowed
+            self.report_error(exc)
+
+    def load_bytes(self, name: str, content: bytes):
+        """Load a capture from the bytes of a file (what the upload button does) and select it."""
+        try:
+            data = read_capture(io.BytesIO(bytes(content)))
+        except ValueError as exc:  # the reader names a buffer; name the uploaded file instead
+            raise ValueError(str(exc).replace("<buffer>", name, 1)) from None
+        data = dataclasses.replace(data, source=name)
+        key = f"{_UPLOAD_PREFIX}{name}"
+        self._captures[key] = data
+        dd = self.controls.capture
+        if key not in dd.options:
+            dd.options = [*[o for o in dd.options if not str(o).startswith("(no demo")], key]
+        dd.value = key
+
+    def _uploaded(self, change):  # live sessions only: the browser sends the file
+        files = change["new"]
+        if not files:
+            return
+        item = files[0]
+        try:
+            self.load_bytes(item["name"], item["content"])
+        except Exception as exc:
+            self.report_error(exc)
+
+    # -- behaviour -----------------------------------------------------------------------
+    def settings(self) -> CaptureSettings:
+        """The boxes read into SI settings (empty boxes are None)."""
+        c = self.controls
+
+        def opt(box):
+            return box.si() if box.value.strip() else None
+
+        material = None if c.material.value == _NO_MODEL else c.material.value
+        return CaptureSettings(turns=opt(c.turns), sense_turns=opt(c.sense_turns), area=opt(c.area),
+                               volume=opt(c.volume), path_length=opt(c.path_length), material=material,
+                               temperature=opt(c.temperature))
+
+    def _refresh(self):
+        settings = self.settings()
+        data = self._data(self.controls.capture.value)
+        view = capture_view(data, settings)
+        self.view = view
+        self.source.data = dict(view.period)
+        for f in (self.flux_figure, self.dbdt_figure):
+            f.xaxis.axis_label = f"time in the period [{view.time_unit}]"
+        self.no_loop_label.visible = not view.has_loop
+        self.summary_html.value = f'<div style="font-size:1.1em" class="fluxheat-capture-summary">{html.escape(view.summary)}</div>'
+        self.loss_html.value = self._loss_table(view)
+        a = view.analysis
+        items = [*(("warning", w) for w in a.warnings), *(("note", n) for n in a.notes)]
+        if a.skew_sensitivity is not None:
+            items.append(("note", f"a 1 ns delay of the current probe changes the measured loss by "
+                                  f"{100 * a.skew_sensitivity:.2g} %; deskew the probes before trusting it"))
+        self.warnings_html.value = "".join(
+            f'<div style="color:{"#a33" if kind == "warning" else "#6b4b00"}">&#9656; {kind}: {html.escape(text)}</div>'
+            for kind, text in items)
+
+    @staticmethod
+    def _loss_table(view: CaptureView) -> str:
+        def num(x, fmt):
+            return "-" if x is None else format(x, fmt)
+
+        head = "<tr><th>loss</th><th>W/m³</th><th>W/kg</th><th>W in this core</th></tr>"
+        body = "".join(
+            f'<tr><td style="padding:1px 10px">{html.escape(label)}</td><td style="padding:1px 10px">{num(wm3, ".4g")}</td>'
+            f'<td style="padding:1px 10px">{num(wkg, ".3g")}</td><td style="padding:1px 10px">{num(w, ".3g")}</td></tr>'
+            for label, wm3, wkg, w in view.loss_rows)
+        if not view.loss_rows:
+            body = '<tr><td colspan="4">choose a material for a prediction</td></tr>'
+        return f'<table style="font-size:1.05em;border-collapse:collapse">{head}{body}</table>'
+
+    # -- export --------------------------------------------------------------------------
+    def record(self) -> dict:
+        v = self.view
+        inputs = {"capture": v.analysis.source, **v.settings.to_dict()}
+        results = {**v.analysis.to_dict(),
+                   "loss_rows": [{"part": r[0], "w_m3": r[1], "w_kg": r[2], "w_in_core": r[3]} for r in v.loss_rows]}
+        return self._record(inputs, results)
+
+    def table(self) -> dict:
+        p = self.view.period
+        return {"time_s": p["t"], "b_t": p["b"], "dbdt_t_s": p["dbdt"], "h_a_m": p["h"]}
+
+    @property
+    def loss_text(self) -> str:
+        """The loss table as plain text."""
+        if self.view is None:
+            return ""
+        return "\n".join(f"{label}: {wm3:.4g} W/m3" + ("" if wkg is None else f", {wkg:.3g} W/kg")
+                         for label, wm3, wkg, _ in self.view.loss_rows)
