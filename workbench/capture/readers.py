@@ -27,6 +27,7 @@ import math
 import os
 import re
 import zipfile
+import dataclasses
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from types import MappingProxyType
@@ -340,6 +341,8 @@ class _Head:
     header_units: tuple[str, ...] | None
     metadata: dict[str, str]
     trailing_delimiter: bool = False
+    head_chars: int = 0  # characters before the first numeric row
+    row_chars: float = 1.0  # mean characters per row over the first rows of the table
 
 
 def _strip_field(text: str) -> str:
@@ -462,7 +465,12 @@ def _scan_head(source: _Source, delimiter: str | None) -> _Head:
                 found = _numeric_split(body, delimiters)
                 if found is not None:
                     trailing = found[0] is not None and body.rstrip().endswith(found[0])
-                    return _finish_head(label, encoding, line_index - 1, found, lines, trailing)
+                    head = _finish_head(label, encoding, line_index - 1, found, lines, trailing)
+                    sample = [len(text)] + [len(fh.readline()) for _ in range(255)]
+                    sample = [x for x in sample if x] or [len(text)]
+                    return dataclasses.replace(
+                        head, head_chars=consumed - len(text), row_chars=sum(sample) / len(sample)
+                    )
                 lines.append((line_index, body))
             if consumed > MAX_HEADER_BYTES or len(lines) > MAX_HEADER_LINES:
                 raise CaptureError(
@@ -765,7 +773,7 @@ def _parse_table(source: _Source, head: _Head, usecols: list[int]) -> list[np.nd
             skip_blank_lines=True,
             quotechar='"',
         )
-        return _fill_from_chunks(reader, _count_lines(source) - head.data_start)
+        return _fill_from_chunks(reader, _estimate_rows(source, head))
     with source.open_text(head.encoding) as fh:
         table = np.loadtxt(
             fh,
@@ -792,39 +800,42 @@ def _table_encoding(source: _Source, head: _Head) -> str:
     return "utf-8"
 
 
-def _count_lines(source: _Source) -> int:
-    """Number of lines of the file (an upper bound on the table rows), in C-speed chunks."""
-    newlines = returns = 0
-    last = b""
-    with source.open_binary() as fh:
-        while chunk := fh.read(1 << 24):
-            newlines += chunk.count(b"\n")
-            if not newlines:
-                returns += chunk.count(b"\r")
-            last = chunk[-1:]
-    count = newlines if newlines else returns
-    return count + (1 if last not in (b"", b"\n", b"\r") else 0)
+def _estimate_rows(source: _Source, head: _Head) -> int:
+    """Generous estimate of the table rows from the file size and the first rows' length.
+
+    Over-estimating costs nothing resident: pages of an ``np.empty`` buffer that are never
+    written are never touched. Under-estimating costs one copy (see _fill_from_chunks).
+    """
+    size = os.path.getsize(source.path) if source.path is not None else len(source.data or b"")
+    rows = max(size - head.head_chars, 0) / max(head.row_chars, 1.0)
+    return int(rows * 1.25) + 1024
 
 
 def _fill_from_chunks(reader, expected_rows: int) -> list[np.ndarray]:
-    """Copy pandas chunks into preallocated float64 columns; trim or grow as needed."""
+    """Copy pandas chunks into preallocated float64 columns (peak: numbers + one chunk)."""
     columns: list[np.ndarray] | None = None
+    overflow: list[list[np.ndarray]] = []
     filled = 0
     with reader:
         for chunk in reader:
             m = len(chunk)
+            parts = [chunk[c].to_numpy(dtype=np.float64, copy=False) for c in chunk.columns]
             if columns is None:
-                size = max(expected_rows, m)
-                columns = [np.empty(size, dtype=np.float64) for _ in chunk.columns]
-            if filled + m > columns[0].size:  # line count was too low (odd line endings)
-                grow = max(filled + m, 2 * columns[0].size)
-                columns = [np.concatenate((c[:filled], np.empty(grow - filled))) for c in columns]
-            for out, name in zip(columns, chunk.columns):
-                out[filled:filled + m] = chunk[name].to_numpy(dtype=np.float64, copy=False)
+                columns = [np.empty(max(expected_rows, m), dtype=np.float64) for _ in parts]
+            if overflow or filled + m > columns[0].size:  # estimate too low: keep the rest
+                overflow.append([p.copy() for p in parts])
+                continue
+            for out, part in zip(columns, parts):
+                out[filled:filled + m] = part
             filled += m
     if columns is None:
         return []
-    return [c if c.size == filled else c[:filled].copy() for c in columns]
+    if overflow:
+        return [
+            np.concatenate([col[:filled], *(o[j] for o in overflow)])
+            for j, col in enumerate(columns)
+        ]
+    return [col[:filled] for col in columns]
 
 
 def _parse_table_filtered(source: _Source, head: _Head, usecols: list[int]) -> list[np.ndarray]:
@@ -939,7 +950,7 @@ def _stuck_fraction(mask: np.ndarray) -> float:
     return float(lengths[lengths >= CLIP_MIN_RUN].sum()) / mask.size
 
 
-def _rail_fraction(x: np.ndarray, rail: float, inward: np.ndarray) -> float:
+def _rail_fraction(x: np.ndarray, rail: float) -> float:
     """Stuck fraction at `rail` if it is a spike against the next value inward, else 0."""
     at_rail = x == rail
     if np.count_nonzero(at_rail) <= CLIP_FRACTION * x.size:  # cheap early exit
@@ -947,10 +958,14 @@ def _rail_fraction(x: np.ndarray, rail: float, inward: np.ndarray) -> float:
     fraction = _stuck_fraction(at_rail)
     if fraction <= CLIP_FRACTION:
         return 0.0
-    if inward.size:
-        neighbour = inward.max() if rail > inward.max() else inward.min()
-        if at_rail.sum() <= CLIP_SPIKE_RATIO * np.count_nonzero(x == neighbour):
-            return 0.0
+    if rail >= x.max():  # next distinct value below the top rail, without a masked copy
+        neighbour = np.max(x, where=~at_rail, initial=-np.inf)
+    else:
+        neighbour = np.min(x, where=~at_rail, initial=np.inf)
+    if np.isfinite(neighbour) and at_rail.sum() <= CLIP_SPIKE_RATIO * np.count_nonzero(
+        x == neighbour
+    ):
+        return 0.0
     return fraction
 
 
@@ -971,8 +986,8 @@ def _clipping(channels: Mapping[str, np.ndarray]) -> dict[str, str]:
         if hi == lo:
             at_hi, at_lo = 1.0, 0.0  # a dead-flat channel
         else:
-            at_hi = _rail_fraction(x, hi, x[x < hi])
-            at_lo = _rail_fraction(x, lo, x[x > lo])
+            at_hi = _rail_fraction(x, hi)
+            at_lo = _rail_fraction(x, lo)
         if max(at_hi, at_lo) > CLIP_FRACTION:
             flagged.append(name)
             parts = []
@@ -986,10 +1001,9 @@ def _clipping(channels: Mapping[str, np.ndarray]) -> dict[str, str]:
 
 
 def _check_time(label: str, t: np.ndarray, where_row) -> None:
-    d = np.diff(t)
-    bad = np.flatnonzero(~(d > 0))
-    if bad.size:
-        k = int(bad[0]) + 1
+    not_rising = ~(t[1:] > t[:-1])  # one boolean pass, no float temporary
+    if not_rising.any():
+        k = int(np.argmax(not_rising)) + 1
         prev, here = where_row(k - 1), where_row(k)
         if t[k] == t[k - 1]:
             raise CaptureError(
@@ -1063,7 +1077,10 @@ def _read_csv(
             f"{label}: only {n} data row(s) from row {first_row}; a capture needs at least "
             f"{MIN_SAMPLES} samples"
         )
-    bad_rows = [np.flatnonzero(~np.isfinite(col)) for col in table]
+    # a finite sum means every sample is finite (NaN and Inf propagate); only an overflowing
+    # sum or a real NaN/Inf costs the element-wise search
+    suspect = [col for col in table if not np.isfinite(np.sum(col))]
+    bad_rows = [np.flatnonzero(~np.isfinite(col)) for col in suspect]
     if any(b.size for b in bad_rows):
         k = min(int(b[0]) for b in bad_rows if b.size)
         line_no, text = _line_of_row(source, head, k)
