@@ -148,3 +148,13 @@ def test_uniform_grid_resamples_a_record_with_a_gap():
     tg, ys, resampled = uniform_grid(t, 2.0 * t)
     assert resampled
     np.testing.assert_allclose(ys[0], 2.0 * tg)  # linear signal: interpolation is exact
+
+
+def test_long_record_with_hundreds_of_periods():
+    # 700 k samples: the coarse estimate runs on a block-averaged copy, the refinement in
+    # stages must not slip to a neighbouring multiple of the period
+    freq = 100.3e3
+    t, y = _record(freq, 200e6, 350.4, lambda w: np.arcsin(np.sin(w)) + 0.3 * np.sin(2 * w), noise=0.05, seed=9)
+    est = detect_period(t, y)
+    assert est.freq == pytest.approx(freq, rel=1e-5)  # built at `freq`
+    assert est.multiple > 100

@@ -234,8 +234,10 @@ def detect_period(t, y) -> PeriodEstimate:
        the highest peak (so a strong harmonic does not win, and a sub-multiple
        never does since the signal does not repeat there), refined by a
        parabola through the peak [2]_.
-    2. Fine estimate: at the largest whole multiple m of that lag that still
-       leaves one period of overlap, the lag minimising the mean squared
+    2. Fine estimate, in stages m = 1, 4, 16, ... up to the largest whole
+       multiple of the period that still leaves one period of overlap (each
+       stage searches a window a few samples wide around m times the previous
+       estimate, so it cannot jump to a neighbouring multiple): the lag minimising the
        difference :math:`\\mathrm{var}(y(t + mT) - y(t))` (linear
        interpolation between samples, the interpolation's smoothing of white
        noise subtracted, bounded scalar search); T is that lag / m.
@@ -260,23 +262,28 @@ def detect_period(t, y) -> PeriodEstimate:
     factor = max(1, int(np.ceil(y.size / COARSE_MAX_SAMPLES)))
     yc = _block_mean(y, factor) if factor > 1 else y
     lag_c, corr = _coarse_lag(yc - yc.mean())
-    lag0 = lag_c * factor
+    lag = lag_c * factor
     n = y.size
-    m = max(1, int(np.floor((n - 1) / lag0)) - 1)
-    width = max(1.5, 0.02 * lag0) * (1.0 if factor == 1 else factor)
-    lo = max(1.0, m * lag0 - width * m ** 0.5)
-    hi = min(n - 2.0, m * lag0 + width * m ** 0.5)
-    if hi > lo:
-        grid = np.linspace(lo, hi, 41)
-        noise_var = estimate_noise(y) ** 2
-        costs = np.array([_mismatch(y, g, noise_var) for g in grid])
-        j = int(np.argmin(costs))
-        a, b = grid[max(j - 1, 0)], grid[min(j + 1, grid.size - 1)]
-        res = minimize_scalar(lambda g: _mismatch(y, g, noise_var), bounds=(a, b), method="bounded",
-                              options={"xatol": 1e-6 * m})
-        lag = float(res.x) / m
-    else:
-        lag = lag0
+    m_max = max(1, int(np.floor((n - 1) / lag)) - 1)
+    noise_var = estimate_noise(y) ** 2
+    uncertainty = float(factor)  # of one period, in samples, before refinement
+    m = 1
+    while True:
+        half = min(3.0 * uncertainty * m + 1.0, 0.3 * lag)
+        lo = max(1.0, m * lag - half)
+        hi = min(n - 2.0, m * lag + half)
+        if hi > lo:
+            grid = np.linspace(lo, hi, 21)
+            costs = np.array([_mismatch(y, g, noise_var) for g in grid])
+            j = int(np.argmin(costs))
+            a, b = grid[max(j - 1, 0)], grid[min(j + 1, grid.size - 1)]
+            res = minimize_scalar(lambda g: _mismatch(y, g, noise_var), bounds=(a, b), method="bounded",
+                                  options={"xatol": 1e-4})
+            lag = float(res.x) / m
+            uncertainty = 1.0 / m
+        if m == m_max:
+            break
+        m = min(4 * m, m_max)
     period = lag * step
     return PeriodEstimate(period=period, freq=1.0 / period, n_periods=(n * step) / period,
                           correlation=float(corr), multiple=m)
