@@ -98,7 +98,8 @@ def add_capture_options(p: argparse.ArgumentParser) -> None:
     r.add_argument("--time-column", help="time column: header name or 0-based index")
     r.add_argument("--column", action="append", metavar="CHANNEL=COLUMN",
                    help="read channel b, flux, v, v_sense or i from a header name or 0-based index; repeatable")
-    r.add_argument("--delimiter", choices=(",", ";", "tab", "space"), help="column delimiter (default: detected)")
+    r.add_argument("--delimiter", choices=("comma", "semicolon", "tab", "space"),
+                   help="column delimiter (default: detected)")
     r.add_argument("--time-unit", help="unit of the time column when the header has none, e.g. us")
     r.add_argument("--unit", action="append", metavar="CHANNEL=UNIT", help="unit of a channel, e.g. v_sense=mV; repeatable")
 
@@ -122,7 +123,7 @@ def reader_options(args) -> dict:
     if args.column:
         out["columns"] = _pairs(args.column, "--column")
     if args.delimiter:
-        out["delimiter"] = {"tab": "\t", "space": " "}.get(args.delimiter, args.delimiter)
+        out["delimiter"] = {"comma": ",", "semicolon": ";", "tab": "\t", "space": " "}[args.delimiter]
     if args.time_unit:
         out["time_unit"] = args.time_unit
     if args.unit:
