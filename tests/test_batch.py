@@ -170,3 +170,27 @@ def test_foreign_output_file_is_refused_and_left_alone(folder, tmp_path):
 def test_bad_worker_count_is_refused(folder, tmp_path, workers):
     with pytest.raises(ValueError, match="workers"):
         run(folder, tmp_path, workers=workers)
+
+
+def cli_folder(folder, out, *extra):
+    from workbench.cli.main import main
+
+    return main(["folder", str(folder), "--out", str(out), "--turns", "10", "--area", "1cm2",
+                 "--steinmetz", "2", "1.5", "2.6", "--json", *extra])
+
+
+def test_folder_command_resumes_by_default_and_runs_on_dask(folder, tmp_path, capsys):
+    distributed = pytest.importorskip("dask.distributed")
+    assert cli_folder(folder, tmp_path / "local", "--workers", "2") == 0
+    first = json.loads(capsys.readouterr().out)
+    assert first["files_analysed"] == 5
+    assert cli_folder(folder, tmp_path / "local") == 0  # no flag needed to resume
+    assert json.loads(capsys.readouterr().out)["files_skipped"] == 5
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False, protocol="tcp",
+                                  host="127.0.0.1", dashboard_address=None) as cluster:
+        assert cli_folder(folder, tmp_path / "cluster", "--scheduler", cluster.scheduler_address) == 0
+    capsys.readouterr()
+    local = by_file(read_log(tmp_path / "local.jsonl"))
+    assert by_file(read_log(tmp_path / "cluster.jsonl")) == local
+    assert cli_folder(folder, tmp_path / "local", "--no-resume") == 2
+    assert "--resume" in capsys.readouterr().err

@@ -13,8 +13,12 @@ run leaves only whole rows. A summary goes to ``OUT.summary.json`` (written to a
 name and renamed) and to stdout.
 
 Each row carries a ``key``: the SHA-256 of the file content and of the analysis settings.
-``--resume`` skips files whose key is already in ``OUT.jsonl`` with status ok, so a changed
-file or changed settings are analysed again, and files that failed are tried again. ``--jobs N`` analyses files in N worker processes.
+Runs resume by default: files whose path and key already have a row with status ok in
+``OUT.jsonl`` are skipped, so a changed file or changed settings are analysed again (the new
+row replaces the old one), and files that failed are tried again (``--no-resume`` refuses to
+touch existing outputs, ``--overwrite`` replaces them). ``--jobs N`` (or ``--workers N``)
+analyses files in N worker processes; ``--scheduler ADDRESS`` runs them on a Dask cluster
+(see :mod:`workbench.analysis.batch`).
 
 Exit status: 0 when every file was analysed, 1 when some files could not be (their rows
 carry the error), 2 on bad arguments or when the outputs cannot be written (nothing is
@@ -31,10 +35,10 @@ import math
 import os
 import sys
 import tempfile
-from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass
 from pathlib import Path
 
+from workbench.analysis.batch import is_result_log, run_batch
 from workbench.cli.capture import (
     CAUTION,
     add_capture_options,
@@ -244,8 +248,16 @@ def register(subparsers) -> argparse.ArgumentParser:
                    help="output path without extension: writes STEM.jsonl, STEM.csv, STEM.summary.json")
     p.add_argument("--pattern", action="append", metavar="GLOB",
                    help=f"file name pattern, repeatable (default {' '.join(DEFAULT_PATTERNS)})")
-    p.add_argument("--jobs", default="1", help="worker processes (default 1)")
-    p.add_argument("--resume", action="store_true", help="append to existing outputs, skipping files already done")
+    p.add_argument("--jobs", "--workers", dest="jobs", default="1", metavar="N",
+                   help="worker processes on this machine (default 1)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run on a Dask cluster, e.g. tcp://10.0.0.5:8786 (needs the 'cluster' extra: "
+                        "pip install fluxheat-workbench[cluster]; the files must be readable by the "
+                        "workers at the same path)")
+    p.add_argument("--resume", action="store_true", default=True,
+                   help="continue existing outputs, skipping files already done (the default)")
+    p.add_argument("--no-resume", dest="resume", action="store_false",
+                   help="refuse to touch existing outputs instead of continuing them")
     p.add_argument("--overwrite", action="store_true", help="replace existing outputs")
     add_capture_options(p)
     add_model_options(p)
@@ -274,8 +286,7 @@ def run(args) -> int:
         raise ValueError(f"--jobs: expected a whole number, got {args.jobs!r}") from None
     if not 1 <= jobs <= 256:
         raise ValueError(f"--jobs: must be between 1 and 256, got {args.jobs!r}")
-    if args.resume and args.overwrite:
-        raise ValueError("--resume and --overwrite exclude each other")
+    resume = args.resume and not args.overwrite
     stem = Path(args.out)
     out_dir = stem.parent if str(stem.parent) else Path(".")
     if not out_dir.is_dir():
@@ -284,8 +295,11 @@ def run(args) -> int:
         raise ValueError(f"--out: folder {str(out_dir)!r} is not writable")
     jsonl, csv_path, summary_path = (Path(f"{stem}{ext}") for ext in (".jsonl", ".csv", ".summary.json"))
     existing = [q for q in (jsonl, csv_path) if q.exists()]
-    if existing and not (args.resume or args.overwrite):
+    if existing and not (resume or args.overwrite):
         raise ValueError(f"--out: {existing[0]} exists; pass --resume to continue it or --overwrite to replace it")
+    if resume and jsonl.exists() and not is_result_log(jsonl):
+        raise ValueError(f"--out: {jsonl} exists but is not a result log that --resume can continue; "
+                         "pass --overwrite to replace it")
 
     settings = settings_payload(args)  # validates every option before anything is written
     if args.material:
@@ -297,36 +311,11 @@ def run(args) -> int:
     if not files:
         raise ValueError(f"{args.folder}: no capture files matching {' '.join(patterns)}")
 
-    done = done_keys(jsonl) if args.resume else set()
-    todo, skipped = [], 0
-    for q in files:
-        key = file_key(q, settings)
-        if key in done:
-            skipped += 1
-        else:
-            todo.append((str(q), key))
-
-    if args.resume:
-        _trim_torn_line(jsonl)
-        _trim_torn_line(csv_path)
-    writer = RowWriter(jsonl, csv_path)
-    writer.open(fresh=not args.resume)
-    rows: list[dict] = []
-    try:
-        if jobs == 1:
-            for path, key in todo:
-                row = analyse_one(path, settings, key)
-                writer.add(row)
-                rows.append(row)
-        else:
-            with ProcessPoolExecutor(max_workers=jobs) as pool:
-                futures = [pool.submit(analyse_one, path, settings, key) for path, key in todo]
-                for fut in as_completed(futures):
-                    row = fut.result()
-                    writer.add(row)
-                    rows.append(row)
-    finally:
-        writer.close()
+    result = run_batch(
+        [str(q) for q in files], settings, jsonl=jsonl, csv_path=csv_path, task=analyse_one,
+        columns=CSV_COLUMNS, workers=jobs, scheduler=args.scheduler, resume=resume,
+    )
+    rows, skipped = list(result.rows), result.skipped
     summary = summarise(rows, skipped)
     summary.update(outputs={"jsonl": str(jsonl), "csv": str(csv_path), "summary": str(summary_path)})
     _write_atomic(summary_path, json.dumps(summary, indent=2, sort_keys=True) + "\n")
