@@ -183,6 +183,13 @@ class FluxWaveform:
     def mean_abs_dbdt_power(self, exponent: float) -> float:
         """Time average of |dB/dt|**exponent over the period [(T/s)**exponent].
 
+        Parameters
+        ----------
+        exponent : float
+            Power of the slope [-].
+
+        Notes
+        -----
         Exact for piecewise-linear flux: each segment contributes
         |dB_i|**exponent * dt_i**(1 - exponent).
         """
@@ -191,13 +198,25 @@ class FluxWaveform:
         return float(np.sum(db**exponent * dt ** (1.0 - exponent)) / self.period)
 
     def is_uniform(self, rtol: float = 1e-9) -> bool:
-        """True when the samples, with the wrap-around step, are evenly spaced."""
+        """True when the samples, with the wrap-around step, are evenly spaced.
+
+        Parameters
+        ----------
+        rtol : float, optional
+            Allowed spread of the steps relative to their mean [-].
+        """
         dt = self.segment_durations
         return bool(np.ptp(dt) <= rtol * dt.mean())
 
     # ---- transforms --------------------------------------------------------
     def resample(self, n: int) -> "FluxWaveform":
-        """Return the same waveform on ``n`` evenly spaced samples (linear interpolation)."""
+        """Return the same waveform on ``n`` evenly spaced samples (linear interpolation).
+
+        Parameters
+        ----------
+        n : int
+            Number of samples per period [-], at least 2.
+        """
         n = int(n)
         if n < 2:
             raise ValueError(f"n must be at least 2, got {n}")
@@ -207,8 +226,15 @@ class FluxWaveform:
         return FluxWaveform(t_new, np.interp(t_new, tp, bp), self.period)
 
     def shifted(self, delay: float) -> "FluxWaveform":
-        """Return B(t - delay), rotated within the period [s].
+        """Return B(t - delay), rotated within the period.
 
+        Parameters
+        ----------
+        delay : float
+            Time shift [s]; any finite value (taken modulo the period).
+
+        Notes
+        -----
         The samples move with the waveform; where no sample lands on t = 0 one
         is added there (linear interpolation, exact for piecewise-linear flux).
         """
@@ -228,11 +254,23 @@ class FluxWaveform:
         return FluxWaveform(tau, b, self.period)
 
     def scaled(self, factor: float) -> "FluxWaveform":
-        """Return the waveform with B multiplied by ``factor`` (negative flips polarity)."""
+        """Return the waveform with B multiplied by ``factor`` (negative flips polarity).
+
+        Parameters
+        ----------
+        factor : float
+            Scale of the flux density [-].
+        """
         return FluxWaveform(self.t, self.b * float(factor), self.period)
 
     def with_period(self, period: float) -> "FluxWaveform":
-        """Return the same shape played at another period [s] (time axis stretched)."""
+        """Return the same shape played at another period (time axis stretched).
+
+        Parameters
+        ----------
+        period : float
+            New period [s].
+        """
         period = _as_positive(period, "period")
         return FluxWaveform(self.t * (period / self.period), self.b, period)
 
@@ -269,6 +307,13 @@ class FluxWaveform:
     def reversals(self, threshold: float | None = None) -> np.ndarray:
         """Indices of the flux reversal points (turning points) within the period.
 
+        Parameters
+        ----------
+        threshold : float, optional
+            Smallest flux swing counted as a reversal [T]; default from the data.
+
+        Notes
+        -----
         See :func:`reversal_indices`; the first index is that of the global maximum.
         """
         return reversal_indices(self.b, threshold=threshold)
@@ -634,9 +679,26 @@ def trapezoid(b_peak: float, freq: float, duty: float, *, b_dc: float = 0.0) -> 
 def pwm_voltage_states(fundamental_freq, carrier_freq, modulation_index, *, levels=2, samples_per_carrier=64):
     """Switching state (-1, 0, +1) of a sine-triangle PWM bridge over one fundamental period.
 
-    Returns ``(t, state)`` on a uniform grid of ``samples_per_carrier`` samples per
-    carrier period; state is +/-1 for a two-level half bridge (bipolar) and
-    -1/0/+1 for a three-level full bridge with unipolar modulation.
+    Parameters
+    ----------
+    fundamental_freq : float
+        Output (fundamental) frequency [Hz].
+    carrier_freq : float
+        Carrier frequency [Hz], an integer multiple (at least 3) of the fundamental.
+    modulation_index : float
+        Peak of the reference over the carrier peak, in (0, 1] [-].
+    levels : {2, 3}
+        Two-level bipolar or three-level unipolar bridge [-].
+    samples_per_carrier : int
+        Grid points per carrier period [-], at least 8.
+
+    Returns
+    -------
+    t : ndarray
+        Sample times, at the middle of each grid step [s].
+    state : ndarray
+        +/-1 for a two-level half bridge (bipolar), -1/0/+1 for a three-level
+        full bridge with unipolar modulation [-].
 
     References
     ----------

@@ -77,7 +77,13 @@ class LossBreakdown:
     notes: tuple[str, ...] = ()
 
     def specific(self, value: float | None) -> float | None:
-        """Convert a loss density [W/m^3] to a specific loss [W/kg]."""
+        """Convert a loss density to a specific loss [W/kg].
+
+        Parameters
+        ----------
+        value : float or None
+            Loss density [W/m^3]; None passes through.
+        """
         return None if value is None else value / self.density
 
     @property
@@ -127,7 +133,21 @@ class LossBreakdown:
 
 
 def steinmetz_k_at(material, temperature: float | None) -> float:
-    """Steinmetz coefficient k of a material at a core temperature [W/m^3 units of k]."""
+    """Steinmetz coefficient k of a material at a core temperature.
+
+    Parameters
+    ----------
+    material : workbench.materials.Material
+        Material data [SI units].
+    temperature : float or None
+        Core temperature [degC]; None (or a material without temperature
+        coefficients) gives the material's k.
+
+    Returns
+    -------
+    float
+        k [W/m^3 with f in Hz and B in T], times the material's temperature factor.
+    """
     st = material.steinmetz
     if temperature is None or st.temperature is None:
         return st.k

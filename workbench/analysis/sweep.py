@@ -44,6 +44,13 @@ class ShapeLaws:
     relax_terms: tuple  # (k_r, alpha_r, beta_r, tau, slopes_1hz, durations_1hz, q, flux_pp) or ()
 
     def igse_total(self, freq):
+        """Steinmetz-family total (iGSE plus any i2GSE relaxation) [W/m^3].
+
+        Parameters
+        ----------
+        freq : array_like
+            Frequencies [Hz].
+        """
         f = np.asarray(freq, dtype=float)
         out = self.igse_1hz * f**self.alpha
         if self.relax_terms:
@@ -54,9 +61,29 @@ class ShapeLaws:
         return out
 
     def relaxation(self, freq):
+        """i2GSE relaxation part of the total [W/m^3] (0 without relaxation data).
+
+        Parameters
+        ----------
+        freq : array_like
+            Frequencies [Hz].
+        """
         return self.igse_total(freq) - self.igse_1hz * np.asarray(freq, dtype=float) ** self.alpha
 
     def classical(self, freq, resistivity, thickness, rel_permeability=None):
+        """Classical eddy-current part [W/m^3], with the skin effect per harmonic when a permeability is given.
+
+        Parameters
+        ----------
+        freq : array_like
+            Frequencies [Hz].
+        resistivity : float
+            Resistivity [ohm m].
+        thickness : float
+            Lamination thickness [m].
+        rel_permeability : float, optional
+            Relative permeability [-]; None leaves out the skin effect.
+        """
         f = np.asarray(freq, dtype=float)
         if rel_permeability is None:
             return self.classical_1hz_thin * (thickness**2 / (12 * resistivity)) * f**2
@@ -65,14 +92,47 @@ class ShapeLaws:
         return np.sum(p, axis=-1)
 
     def hysteresis(self, freq):
+        """Hysteresis part [W/m^3], or None without a separation set.
+
+        Parameters
+        ----------
+        freq : array_like
+            Frequencies [Hz].
+        """
         return None if self.hyst_1hz is None else self.hyst_1hz * np.asarray(freq, dtype=float)
 
     def excess(self, freq):
+        """Excess part [W/m^3], or None without a separation set.
+
+        Parameters
+        ----------
+        freq : array_like
+            Frequencies [Hz].
+        """
         return None if self.excess_1hz is None else self.excess_1hz * np.asarray(freq, dtype=float) ** 1.5
 
 
 def shape_laws(material, shape: str = "sine", *, b_peak: float, duty: float = 0.5, temperature=None) -> ShapeLaws:
-    """Per-part frequency laws of one waveform shape on one material (see :class:`ShapeLaws`)."""
+    """Per-part frequency laws of one waveform shape on one material (see :class:`ShapeLaws`).
+
+    Parameters
+    ----------
+    material : workbench.materials.Material
+        Material data [SI units].
+    shape : {"sine", "triangle", "trapezoid"}
+        Waveform shape.
+    b_peak : float
+        Peak flux density [T].
+    duty : float
+        Duty cycle of the shape [-].
+    temperature : float, optional
+        Core temperature [degC] for the Steinmetz coefficient.
+
+    Returns
+    -------
+    ShapeLaws
+        Coefficients at 1 Hz; each part scales with its own power of f.
+    """
     w = make_shape(shape, b_peak=b_peak, freq=1.0, duty=duty)
     st = material.steinmetz
     k = steinmetz_k_at(material, temperature)
@@ -263,7 +323,13 @@ class FrequencySweep:
     valid_freq_range: tuple[float, float]
 
     def energy_per_cycle(self, values: np.ndarray) -> np.ndarray:
-        """Loss per cycle P/f [J/m^3] of one of the loss arrays."""
+        """Loss per cycle P/f [J/m^3] of one of the loss arrays.
+
+        Parameters
+        ----------
+        values : ndarray
+            Loss densities at ``self.freq`` [W/m^3].
+        """
         return values / self.freq
 
     @property

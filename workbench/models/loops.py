@@ -88,7 +88,7 @@ def decompose_loops(waveform: FluxWaveform, threshold: float | None = None) -> L
     Parameters
     ----------
     waveform : FluxWaveform
-        One period of flux.
+        One period of flux density B(t) [T].
     threshold : float, optional
         Smallest flux swing that counts as a reversal [T]; default derived from
         the data (see :func:`workbench.waveforms.default_threshold`).
@@ -293,9 +293,9 @@ def loop_path_integrals(waveform: FluxWaveform, loops: LoopSet, segment_weight: 
     Parameters
     ----------
     waveform : FluxWaveform
-        The waveform the loops were found in.
+        The waveform the loops were found in, B(t) [T].
     loops : LoopSet
-        From :func:`decompose_loops`.
+        From :func:`decompose_loops` (flux levels [T]).
     segment_weight : ndarray
         One weight per segment of the *original* waveform (segment i runs from
         sample i to i+1, the last one wraps around), e.g. ``|dB/dt|**(alpha-1)``
@@ -336,9 +336,9 @@ def loop_abs_dbdt_integrals(waveform: FluxWaveform, loops: LoopSet, exponent: fl
     Parameters
     ----------
     waveform : FluxWaveform
-        The waveform the loops were found in.
+        The waveform the loops were found in, B(t) [T].
     loops : LoopSet
-        From :func:`decompose_loops`.
+        From :func:`decompose_loops` (flux levels [T]).
     exponent : float
         Exponent of the slope, alpha of the iGSE [-].
 

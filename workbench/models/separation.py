@@ -175,7 +175,7 @@ def classical_eddy_waveform(waveform: FluxWaveform, resistivity, thickness, rel_
     Parameters
     ----------
     waveform : FluxWaveform
-        One period of flux.
+        One period of flux density B(t) [T].
     resistivity : float
         Electrical resistivity [ohm m].
     thickness : float
@@ -184,7 +184,7 @@ def classical_eddy_waveform(waveform: FluxWaveform, resistivity, thickness, rel_
         Relative permeability [-]; if given, each harmonic gets its own skin-effect
         factor (linear diffusion superposes).
     n_harmonics : int, optional
-        Harmonics summed with the skin effect (default: all the samples resolve).
+        Number of harmonics summed with the skin effect [-] (default: all the samples resolve).
 
     Returns
     -------
@@ -259,15 +259,15 @@ def hysteresis_loss_waveform(waveform: FluxWaveform, k_hyst, beta_hyst, *, minor
     Parameters
     ----------
     waveform : FluxWaveform
-        One period of flux.
+        One period of flux density B(t) [T].
     k_hyst, beta_hyst : float
         Hysteresis parameters [J/m^3 / T**beta_hyst, -].
     minor_loops : bool, optional
-        Count minor loops (default); otherwise one loop of the full swing.
+        Count minor loops (default) [-]; otherwise one loop of the full swing.
     threshold : float, optional
         Smallest reversal counted [T].
     loops : LoopSet, optional
-        A decomposition already computed for this waveform.
+        A decomposition already computed for this waveform (flux levels [T]).
 
     Returns
     -------
@@ -330,14 +330,26 @@ def excess_loss(freq, b_peak, k_excess):
 
 
 def excess_loss_waveform(waveform: FluxWaveform, k_excess) -> float:
-    """Excess loss for any waveform: ``k_excess * mean(|dB/dt|**1.5)`` [W/m^3].
+    r"""Excess loss for any waveform: ``k_excess * mean(|dB/dt|**1.5)`` [W/m^3].
 
     Parameters
     ----------
     waveform : FluxWaveform
-        One period of flux.
+        One period of flux density B(t) [T].
     k_excess : float
         Excess-loss coefficient [W/m^3 / (T/s)**1.5].
+
+    Returns
+    -------
+    float
+        Loss per unit volume averaged over the period [W/m^3].
+
+    Notes
+    -----
+    .. math:: P_{exc} = k_{exc}\,\overline{|dB/dt|^{3/2}}
+
+    exact for piecewise-linear flux (each segment contributes
+    ``|dB_i|**1.5 dt_i**-0.5``).
 
     References
     ----------

@@ -22,6 +22,7 @@ __all__ = [
     "IgseResult",
     "i2gse",
     "I2gseResult",
+    "flat_intervals",
     "steinmetz_temperature_factor",
 ]
 
@@ -90,10 +91,14 @@ def mean_abs_cos_power(exponent):
 
     References
     ----------
-    .. [1] NIST Digital Library of Mathematical Functions, eq. 5.12.2 (beta
-       function as an integral of powers of sine and cosine), https://dlmf.nist.gov/5.12
+    .. [1] F. W. J. Olver, D. W. Lozier, R. F. Boisvert, C. W. Clark (eds.), *NIST
+       Handbook of Mathematical Functions*, Cambridge University Press, 2010,
+       eq. 5.12.2 (beta function as an integral of powers of sine and cosine);
+       online as https://dlmf.nist.gov/5.12
     """
     a = np.asarray(exponent, dtype=float)
+    if not np.all(np.isfinite(a)) or np.any(a <= -1):
+        raise ValueError(f"exponent must be finite and greater than -1, got {exponent!r}")
     return np.exp(gammaln((a + 1) / 2) - gammaln(a / 2 + 1) - 0.5 * np.log(np.pi))
 
 
@@ -168,16 +173,16 @@ def igse_loops(waveform: FluxWaveform, k, alpha, beta, *, minor_loops: bool = Tr
     Parameters
     ----------
     waveform : FluxWaveform
-        One period of flux.
+        One period of flux density B(t) [T].
     k, alpha, beta : float
         Steinmetz parameters [W/m^3, Hz, T].
     minor_loops : bool, optional
-        Split the waveform into its major and minor loops (default). If False,
+        Split the waveform into its major and minor loops (default) [-]. If False,
         the whole period is one loop weighted by its peak-to-peak flux.
     threshold : float, optional
         Smallest reversal counted [T]; default derived from the data.
     loops : LoopSet, optional
-        A decomposition already computed for this waveform.
+        A decomposition already computed for this waveform (flux levels [T]).
 
     Returns
     -------
@@ -221,11 +226,11 @@ def igse(waveform: FluxWaveform, k, alpha, beta, *, minor_loops: bool = True, th
     Parameters
     ----------
     waveform : FluxWaveform
-        One period of flux density.
+        One period of flux density B(t) [T].
     k, alpha, beta : float
         Steinmetz parameters [W/m^3, Hz, T] from sinusoidal data.
     minor_loops : bool, optional
-        Apply the minor-loop procedure (default True).
+        Apply the minor-loop procedure (default True) [-].
     threshold : float, optional
         Smallest reversal counted as a loop [T]; default derived from the data.
 
@@ -255,10 +260,34 @@ def igse(waveform: FluxWaveform, k, alpha, beta, *, minor_loops: bool = True, th
 def flat_intervals(waveform: FluxWaveform, rel_slope: float = 1e-3):
     """Intervals where the flux stays constant (zero winding voltage).
 
-    Returns ``(duration, slope_before, slope_after)`` arrays [s, T/s, T/s], one
-    entry per interval, for intervals entered from a non-zero slope.
-    A segment is flat when ``|dB/dt| <= rel_slope * max|dB/dt|``.
+    Parameters
+    ----------
+    waveform : FluxWaveform
+        One period of flux density B(t) [T].
+    rel_slope : float, optional
+        A segment is flat when ``|dB/dt| <= rel_slope * max|dB/dt|`` [-].
+
+    Returns
+    -------
+    duration, slope_before, slope_after : ndarray
+        One entry per flat interval entered from a non-zero slope: its length [s]
+        and the slopes dB/dt just before and just after it [T/s].
+
+    Notes
+    -----
+    These are the intervals after which the i2GSE adds relaxation loss; runs of
+    flat segments that wrap around the end of the period count as one interval.
+    With the voltage v = N A dB/dt, a flat interval is one with v = 0.
+
+    References
+    ----------
+    .. [1] J. Muehlethaler, J. Biela, J. W. Kolar, A. Ecklebe, "Improved core-loss
+       calculation for magnetic components employed in power electronic systems",
+       IEEE Trans. Power Electron. 27(2), 2012, pp. 964-973.
     """
+    rel_slope = float(rel_slope)
+    if not (np.isfinite(rel_slope) and 0 <= rel_slope < 1):
+        raise ValueError(f"rel_slope must lie in [0, 1), got {rel_slope!r}")
     s = waveform.dbdt()
     dt = waveform.segment_durations
     smax = np.max(np.abs(s))
@@ -300,7 +329,7 @@ def i2gse(waveform: FluxWaveform, k, alpha, beta, k_r, alpha_r, beta_r, tau, q_r
     Parameters
     ----------
     waveform : FluxWaveform
-        One period of flux.
+        One period of flux density B(t) [T].
     k, alpha, beta : float
         Steinmetz parameters [W/m^3, Hz, T].
     k_r, alpha_r, beta_r : float
@@ -310,9 +339,9 @@ def i2gse(waveform: FluxWaveform, k, alpha, beta, k_r, alpha_r, beta_r, tau, q_r
         Relaxation time constant [s].
     q_r : float, optional
         Decay parameter for an interval after which the flux continues in the same
-        direction; without it every interval relaxes fully (Q = 1).
+        direction [-]; without it every interval relaxes fully (Q = 1).
     minor_loops : bool, optional
-        Minor-loop procedure for the iGSE part.
+        Minor-loop procedure for the iGSE part [-].
     threshold : float, optional
         Reversal threshold for the iGSE part [T].
 
