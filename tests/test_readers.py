@@ -343,6 +343,32 @@ def test_metadata_lines_are_parsed(tmp_path, parser):
     np.testing.assert_array_equal(cap.channels["i"], i)
 
 
+def test_bare_number_metadata_line_is_not_the_table(parser):
+    text = "Bench export (invented)\n100000\ntime (s),v (V)\n0,1\n1e-8,2\n2e-8,3\n"
+    cap = read_capture(io.StringIO(text))
+    assert cap.metadata["line 2"] == "100000"
+    np.testing.assert_array_equal(cap.channels["v"], [1.0, 2.0, 3.0])
+
+
+@pytest.mark.parametrize(
+    ("bad_row", "cell", "fragment"),
+    [(7001, "x1", "text 'x1' in a numeric cell"), (9001, "NaN", "NaN 'NaN'"),
+     (5003, "", "empty cell")],
+)
+def test_row_numbers_deep_in_a_long_file(tmp_path, bad_row, cell, fragment, parser):
+    # 10 000 rows after 2 header lines and one blank line: the row number in the message is
+    # the line number of the file
+    t, v, _ = _invented_flyback(10_000)
+    lines = ["Setup,20 kHz filter choke (invented)\n", "time (s),v (V)\n", "\n"]
+    lines += [f"{a!r},{b!r}\n" for a, b in zip(t.tolist(), v.tolist())]
+    lines[bad_row - 1] = f"{float(t[bad_row - 4])!r},{cell}\n"
+    path = tmp_path / "long.csv"
+    path.write_text("".join(lines))
+    with pytest.raises(CaptureError) as info:
+        read_capture(path)
+    assert f"row {bad_row}, column 2 ('v (V)'): {fragment}" in str(info.value)
+
+
 @pytest.mark.parametrize(
     ("line", "dt"),
     [("Sample interval,1e-8", 1e-8), ("Sample interval,10 ns", 1e-8),

@@ -453,9 +453,14 @@ def _scan_head(source: _Source, delimiter: str | None) -> _Head:
     lines: list[tuple[int, str]] = []  # (1-based line number, text) of non-blank lines
     consumed = 0
     with source.open_text(encoding) as fh:
+        pending: list[str] = []  # lines read ahead and not yet consumed
+
+        def next_line() -> str:
+            return pending.pop(0) if pending else fh.readline(MAX_HEADER_BYTES + 1)
+
         line_index = 0
         while True:
-            text = fh.readline(MAX_HEADER_BYTES + 1)
+            text = next_line()
             if not text:
                 break
             line_index += 1
@@ -463,11 +468,22 @@ def _scan_head(source: _Source, delimiter: str | None) -> _Head:
             body = text.rstrip("\r\n")
             if body.strip():
                 found = _numeric_split(body, delimiters)
+                if found is not None and found[1] == 1:
+                    # a bare number among metadata lines (e.g. a record length on its own
+                    # line) is not the table if the next row is text or has more fields
+                    while True:
+                        ahead = fh.readline(MAX_HEADER_BYTES + 1)
+                        pending.append(ahead)
+                        if not ahead or ahead.strip():
+                            break
+                    after = _numeric_split(ahead.rstrip("\r\n"), delimiters) if ahead else None
+                    if ahead.strip() and (after is None or after[1] > 1):
+                        found = None
                 if found is not None:
                     trailing = found[0] is not None and body.rstrip().endswith(found[0])
                     head = _finish_head(label, encoding, line_index - 1, found, lines, trailing)
-                    sample = [len(text)] + [len(fh.readline()) for _ in range(255)]
-                    sample = [x for x in sample if x] or [len(text)]
+                    rest = pending + [fh.readline() for _ in range(max(0, 255 - len(pending)))]
+                    sample = [x for x in [len(text)] + [len(r) for r in rest] if x]
                     return dataclasses.replace(
                         head, head_chars=consumed - len(text), row_chars=sum(sample) / len(sample)
                     )
