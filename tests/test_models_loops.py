@@ -18,7 +18,8 @@ from hypothesis import strategies as st
 import workbench.waveforms as wfm
 from workbench import models, waveforms
 
-SETTINGS = settings(max_examples=40, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow])
+SETTINGS = settings(max_examples=40, deadline=None, derandomize=True, database=None,
+                    suppress_health_check=[HealthCheck.too_slow])
 
 
 def rainflow_full_cycle_ranges(b: np.ndarray) -> np.ndarray:

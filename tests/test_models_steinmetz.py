@@ -11,13 +11,14 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from scipy.integrate import quad
 
 from workbench import models, waveforms
 
-SETTINGS = settings(max_examples=30, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow])
+SETTINGS = settings(max_examples=30, deadline=None, derandomize=True, database=None,
+                    suppress_health_check=[HealthCheck.too_slow])
 
 # an invented Steinmetz set of ferrite-like size (W/m^3 with f in Hz and B in T)
 K, ALPHA, BETA = 3.2, 1.45, 2.6
@@ -136,6 +137,19 @@ levels_strategy = st.lists(st.floats(-1.0, 1.0), min_size=3, max_size=12, unique
 durations_strategy = st.lists(st.floats(0.05, 1.0), min_size=12, max_size=12)
 
 
+def untied(levels) -> bool:
+    """True when no two flux swings between the levels are (nearly) equal.
+
+    At exactly equal swings the four-point rainflow rule ties, and which stretch of
+    time belongs to which loop depends on where the count starts; the invariances
+    below hold for the well-posed case only.
+    """
+    lv = np.asarray(levels)
+    d = np.abs(lv[:, None] - lv[None, :])[np.triu_indices(lv.size, 1)]
+    d = np.sort(d)
+    return bool(np.all(np.diff(d) > 1e-6) and d[0] > 1e-6)
+
+
 def pl_waveform(levels, durations, period_scale=1e-3):
     """Piecewise-linear waveform with the given vertex levels and segment durations."""
     n = len(levels)
@@ -151,6 +165,7 @@ THRESH = 1e-9  # explicit: the data-derived threshold depends on the sample set
 @given(levels_strategy, durations_strategy, st.floats(0.0, 1.0))
 def test_igse_invariant_under_time_shift(levels, durations, frac):
     # closed form: a periodic waveform delayed within its period has the same loops and slopes
+    assume(untied(levels))
     w = pl_waveform(levels, durations)
     ref = models.igse(w, K, ALPHA, BETA, threshold=THRESH)
     shifted = w.shifted(frac * w.period)
@@ -161,6 +176,7 @@ def test_igse_invariant_under_time_shift(levels, durations, frac):
 @given(levels_strategy, durations_strategy)
 def test_igse_invariant_under_polarity(levels, durations):
     # closed form: -B(t) traces mirrored loops with the same swings and |dB/dt|
+    assume(untied(levels))
     w = pl_waveform(levels, durations)
     ref = models.igse(w, K, ALPHA, BETA, threshold=THRESH)
     assert models.igse(w.scaled(-1.0), K, ALPHA, BETA, threshold=THRESH) == pytest.approx(ref, rel=1e-9)
@@ -170,6 +186,7 @@ def test_igse_invariant_under_polarity(levels, durations):
 @given(levels_strategy, durations_strategy, st.lists(st.floats(0.0, 1.0), min_size=1, max_size=30))
 def test_igse_invariant_under_resampling_at_vertices_plus_extra_points(levels, durations, extra):
     # closed form: adding points on the straight segments of piecewise-linear flux changes nothing
+    assume(untied(levels))
     w = pl_waveform(levels, durations)
     t_extra = np.asarray(extra) * w.period
     t_new = np.unique(np.concatenate((w.t, t_extra[t_extra < w.period * (1 - 1e-9)])))
