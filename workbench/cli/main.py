@@ -62,6 +62,14 @@ def main(argv=None) -> int:
         return EXIT_BAD_INPUT
     try:
         return int(args.func(args) or 0)
+    except BrokenPipeError:
+        # the reader went away (e.g. `| head`): not an error of ours; silence the
+        # flush at interpreter exit too
+        import os
+
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_OK
     except (ValueError, OSError) as exc:
         message = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         if isinstance(exc, OSError) and getattr(exc, "filename", None) and str(exc.filename) not in message:
