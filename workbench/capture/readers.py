@@ -398,7 +398,7 @@ def _detect_encoding(label: str, head: bytes) -> str:
         head.decode("utf-8")
     except UnicodeDecodeError as exc:
         if exc.start < len(head) - 4:  # not just a character cut at the end of the sample
-            return "cp1252" if not any(0x80 <= b <= 0x9F for b in head) else "latin-1"
+            return "cp1252"  # Windows exports: "µs" is byte 0xB5; undefined bytes replaced
     return "utf-8-sig"
 
 
