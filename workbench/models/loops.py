@@ -161,6 +161,49 @@ def _cyclic(x: np.ndarray, first: int, count: int) -> np.ndarray:
 _CHUNK = 1 << 15
 
 
+#: Row length of the blocked running extreme.
+_RUN_BLOCK = 64
+
+
+def _running_extreme(x: np.ndarray, carry: float, out: np.ndarray, rising: bool) -> None:
+    """``out[i] = max(carry, x[0], ..., x[i])`` (min when not ``rising``), blocked.
+
+    ``ufunc.accumulate`` is sequential and slow; on noisy flux most rows of
+    ``_RUN_BLOCK`` samples hold no new extreme (their own extreme does not beat
+    the running one before them), so those rows are filled with the running
+    value and only the others are accumulated.
+    """
+    uf = np.maximum if rising else np.minimum
+    m = x.size
+    nb = m // _RUN_BLOCK
+    if nb < 4:
+        uf.accumulate(x, out=out)
+        uf(out, carry, out=out)
+        return
+    cut = nb * _RUN_BLOCK
+    head = x[:cut].reshape(nb, _RUN_BLOCK)
+    row_ext = head.max(axis=1) if rising else head.min(axis=1)
+    before = np.empty(nb)
+    before[0] = carry
+    uf.accumulate(row_ext[:-1], out=before[1:])
+    uf(before[1:], carry, out=before[1:])
+    new = row_ext > before if rising else row_ext < before
+    rows = np.flatnonzero(new)
+    o = out[:cut].reshape(nb, _RUN_BLOCK)
+    if 2 * rows.size > nb:
+        uf.accumulate(head, axis=1, out=o)
+        uf(o, before[:, None], out=o)
+    else:
+        o[...] = before[:, None]
+        if rows.size:
+            sub = uf.accumulate(head[rows], axis=1)
+            uf(sub, before[rows, None], out=sub)
+            o[rows] = sub
+    if cut < m:
+        uf.accumulate(x[cut:], out=out[cut:])
+        uf(out[cut:], out[cut - 1], out=out[cut:])
+
+
 def _half_integral(b: np.ndarray, first: int, count: int, target: float, weight_of, buf: np.ndarray) -> float:
     """Sum of ``weight * first-passage gain`` over the ``count`` segments of one half.
 
@@ -179,13 +222,10 @@ def _half_integral(b: np.ndarray, first: int, count: int, target: float, weight_
         extreme = buf[:m]
         gain = buf[_CHUNK : _CHUNK + m]
         nxt = path[1:]
+        _running_extreme(path[:-1], carry, extreme, rising)
         if rising:
-            np.maximum.accumulate(path[:-1], out=extreme)
-            np.maximum(extreme, carry, out=extreme)
             np.subtract(nxt, extreme, out=gain)
         else:
-            np.minimum.accumulate(path[:-1], out=extreme)
-            np.minimum(extreme, carry, out=extreme)
             np.subtract(extreme, nxt, out=gain)
         carry = float(extreme[-1])
         positive = gain > 0
