@@ -195,3 +195,18 @@ def test_negative_threshold_is_rejected():
     w = waveforms.sine(0.1, 50.0)
     with pytest.raises(ValueError, match=r"threshold .* got -0\.1"):
         models.decompose_loops(w, threshold=-0.1)
+
+
+@pytest.mark.parametrize("rising", [True, False])
+@pytest.mark.parametrize("size", [3, 64 * 4 - 1, 64 * 50 + 17, 40_000])
+def test_blocked_running_extreme_equals_numpy_accumulate(rising, size):
+    # reference: numpy's ufunc.accumulate; the blocked version skips rows without a new extreme
+    from workbench.models import loops as loops_module
+
+    rng = np.random.default_rng(size)
+    x = rng.normal(0, 1, size) + np.linspace(0, 30 if rising else -30, size)
+    for carry in (-np.inf, np.inf, 0.5):
+        out = np.empty(size)
+        loops_module._running_extreme(x, carry, out, rising)
+        uf = np.maximum if rising else np.minimum
+        np.testing.assert_array_equal(out, uf.accumulate(np.append(carry, x))[1:])
