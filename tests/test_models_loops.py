@@ -198,7 +198,7 @@ def test_negative_threshold_is_rejected():
 
 
 @pytest.mark.parametrize("rising", [True, False])
-@pytest.mark.parametrize("size", [3, 64 * 4 - 1, 64 * 50 + 17, 40_000])
+@pytest.mark.parametrize("size", [3, 64 * 64 - 1, 64 * 64 + 17, 64 * 200 + 5, 40_000])
 def test_blocked_running_extreme_equals_numpy_accumulate(rising, size):
     # reference: numpy's ufunc.accumulate; the blocked version skips rows without a new extreme
     from workbench.models import loops as loops_module

@@ -361,7 +361,15 @@ def estimate_noise(b) -> float:
         return 0.0
     step = max(1, (b.size - 2) // NOISE_SAMPLE_SIZE)
     d2 = b[2::step] - 2.0 * b[1:-1:step] + b[:-2:step]
-    return float(np.median(np.abs(d2)) / (0.6745 * np.sqrt(6.0)))
+    a = np.abs(d2, out=d2)
+    m = a.size
+    half = m // 2
+    if m % 2:
+        med = float(np.partition(a, half)[half])
+    else:  # the mean of the two middle values, as np.median
+        part = np.partition(a, (half - 1, half))
+        med = 0.5 * (float(part[half - 1]) + float(part[half]))
+    return med / (0.6745 * np.sqrt(6.0))
 
 
 #: Reversals smaller than this many noise standard deviations are treated as noise.

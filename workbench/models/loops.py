@@ -176,7 +176,7 @@ def _running_extreme(x: np.ndarray, carry: float, out: np.ndarray, rising: bool)
     uf = np.maximum if rising else np.minimum
     m = x.size
     nb = m // _RUN_BLOCK
-    if nb < 4:
+    if nb < 64:  # short: the plain accumulate costs less than the blocking
         uf.accumulate(x, out=out)
         uf(out, carry, out=out)
         return
@@ -317,12 +317,13 @@ def _loop_integrals(waveform: FluxWaveform, loops: LoopSet, weight_of):
     out = np.zeros(loops.flux_pp.size)
     b = waveform.b
     buf = np.empty(2 * _CHUNK)
+    halves = loops.halves.tolist()
+    targets = loops.targets.tolist()
     for j in range(out.size):
         total = 0.0
-        for (i0, i1), target in zip(loops.halves[j], loops.targets[j]):
-            count = int(i1 - i0)
-            if count >= 1:
-                total += _half_integral(b, loops.start + int(i0), count, float(target), weight_of, buf)
+        for (i0, i1), target in zip(halves[j], targets[j]):
+            if i1 > i0:
+                total += _half_integral(b, loops.start + i0, i1 - i0, target, weight_of, buf)
         out[j] = total
     return out
 
