@@ -416,10 +416,19 @@ def _block_extremes(b: np.ndarray):
     """Per-block argmax/argmin of the first ``n // _BLOCK * _BLOCK`` samples, and their values."""
     nb = b.size // _BLOCK
     blocks = b[: nb * _BLOCK].reshape(nb, _BLOCK)
-    amax = blocks.argmax(axis=1)
-    amin = blocks.argmin(axis=1)
-    rows = np.arange(nb)
-    return amax, amin, blocks[rows, amax], blocks[rows, amin]
+    # max/min reductions, then the first position of each: ndarray.argmax(axis=1)
+    # would copy a read-only array (a waveform's samples) as a whole
+    vmax = blocks.max(axis=1)
+    vmin = blocks.min(axis=1)
+    amax = np.empty(nb, dtype=np.intp)
+    amin = np.empty(nb, dtype=np.intp)
+    step = 1 << 13  # rows per pass: the boolean scratch stays small
+    for r0 in range(0, nb, step):
+        r1 = min(r0 + step, nb)
+        rows = blocks[r0:r1]
+        amax[r0:r1] = (rows == vmax[r0:r1, None]).argmax(axis=1)
+        amin[r0:r1] = (rows == vmin[r0:r1, None]).argmax(axis=1)
+    return amax, amin, vmax, vmin
 
 
 def _candidates(n: int, extremes, h: float):
