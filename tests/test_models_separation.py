@@ -212,3 +212,8 @@ def test_separation_rejects_bad_flux_and_material_values():
         models.excess_loss(50.0, 1.0, np.nan)
     with pytest.raises(ValueError, match=r"k_hyst must be finite and positive, got 0"):
         models.hysteresis_loss(50.0, 1.0, 0.0, 1.9)
+
+
+def test_harmonic_count_must_be_positive():
+    with pytest.raises(ValueError, match=r"n_harmonics must be a positive integer, got 0"):
+        models.classical_eddy_waveform(waveforms.sine(1.0, 50.0), RHO, D, rel_permeability=1000.0, n_harmonics=0)

@@ -317,3 +317,15 @@ def test_minor_loop_closed_form_holds_on_a_long_densely_sampled_record():
     res = models.igse_loops(w, K, ALPHA, BETA)
     assert res.major == pytest.approx(ki * major / period, rel=1e-8)
     assert res.minor == pytest.approx(ki * minor / period, rel=1e-8)
+
+
+def test_no_nan_from_bad_relaxation_or_temperature_coefficients():
+    w = waveforms.trapezoid(0.1, 1e3, 0.5)
+    with pytest.raises(ValueError, match=r"q_r must be finite and non-negative, got nan"):
+        models.i2gse(w, K, ALPHA, BETA, 1e-6, 1.2, 2.0, 1e-5, q_r=float("nan"))
+    with pytest.raises(ValueError, match=r"ct1 must be finite, got inf"):
+        models.steinmetz_temperature_factor(25.0, 1.0, float("inf"), 1e-4)
+    with pytest.raises(ValueError, match=r"exponent must be finite and greater than -1, got -2"):
+        models.mean_abs_cos_power(-2.0)
+    with pytest.raises(ValueError, match=r"rel_slope must lie in \[0, 1\), got 2\.0"):
+        models.flat_intervals(w, rel_slope=2.0)

@@ -355,3 +355,17 @@ def test_reversal_indices_rejects_non_finite_and_short_input():
         waveforms.reversal_indices([0.0, np.nan, 1.0])
     with pytest.raises(ValueError, match=r"at least 2 samples"):
         waveforms.reversal_indices([1.0])
+
+
+def test_spectrum_and_slope_power_reject_bad_arguments():
+    w = waveforms.sine(0.1, 50.0)
+    with pytest.raises(ValueError, match=r"n_harmonics must be a non-negative integer, got -3"):
+        w.spectrum(-3)
+    with pytest.raises(ValueError, match=r"samples must be an integer of at least 2, got 1"):
+        w.spectrum(samples=1)
+    with pytest.raises(ValueError, match=r"exponent must be finite, got nan"):
+        w.mean_abs_dbdt_power(float("nan"))
+    with pytest.raises(ValueError, match=r"delay must be finite, got inf"):
+        w.shifted(float("inf"))
+    with pytest.raises(ValueError, match=r"n must be at least 2, got 1"):
+        w.resample(1)

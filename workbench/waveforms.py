@@ -193,6 +193,9 @@ class FluxWaveform:
         Exact for piecewise-linear flux: each segment contributes
         |dB_i|**exponent * dt_i**(1 - exponent).
         """
+        exponent = float(exponent)
+        if not np.isfinite(exponent):
+            raise ValueError(f"exponent must be finite, got {exponent!r}")
         db = np.abs(self.segment_increments)
         dt = self.segment_durations
         return float(np.sum(db**exponent * dt ** (1.0 - exponent)) / self.period)
@@ -290,7 +293,11 @@ class FluxWaveform:
         Spectrum
             ``amplitude[n]`` is the peak amplitude of the n-th harmonic [T].
         """
-        n = samples or max(256, self.n_samples)
+        if n_harmonics is not None and (int(n_harmonics) != n_harmonics or n_harmonics < 0):
+            raise ValueError(f"n_harmonics must be a non-negative integer, got {n_harmonics!r}")
+        if samples is not None and (int(samples) != samples or samples < 2):
+            raise ValueError(f"samples must be an integer of at least 2, got {samples!r}")
+        n = int(samples) if samples else max(256, self.n_samples)
         w = self if (self.is_uniform() and self.n_samples == n) else self.resample(n)
         c = np.fft.rfft(w.b) / n
         amp = np.abs(c) * 2.0

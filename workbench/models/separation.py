@@ -210,6 +210,8 @@ def classical_eddy_waveform(waveform: FluxWaveform, resistivity, thickness, rel_
         db = waveform.segment_increments
         mean_sq = float(np.sum(db**2 / waveform.segment_durations) / waveform.period)
         return d**2 / (12.0 * rho) * mean_sq
+    if n_harmonics is not None and (int(n_harmonics) != n_harmonics or n_harmonics < 1):
+        raise ValueError(f"n_harmonics must be a positive integer, got {n_harmonics!r}")
     spec = waveform.spectrum(n_harmonics)
     f = spec.freq[1:]
     amp = spec.amplitude[1:]

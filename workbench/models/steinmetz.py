@@ -380,6 +380,8 @@ def i2gse(waveform: FluxWaveform, k, alpha, beta, k_r, alpha_r, beta_r, tau, q_r
     for name, value in (("k_r", k_r), ("alpha_r", alpha_r), ("beta_r", beta_r), ("tau", tau)):
         if not np.isfinite(value) or value <= 0:
             raise ValueError(f"{name} must be finite and positive, got {value!r}")
+    if q_r is not None and not (np.isfinite(q_r) and q_r >= 0):
+        raise ValueError(f"q_r must be finite and non-negative, got {q_r!r}")
     duration, before, after = flat_intervals(waveform)
     if duration.size == 0:
         return I2gseResult(base, base, 0.0, 0)
@@ -423,5 +425,8 @@ def steinmetz_temperature_factor(temperature, ct0, ct1, ct2):
     temp = np.asarray(temperature, dtype=float)
     if not np.all(np.isfinite(temp)):
         raise ValueError(f"temperature must be finite, got {temperature!r}")
+    for name, value in (("ct0", ct0), ("ct1", ct1), ("ct2", ct2)):
+        if not np.isfinite(value):
+            raise ValueError(f"{name} must be finite, got {value!r}")
     out = ct0 - ct1 * temp + ct2 * temp**2
     return float(out) if out.ndim == 0 else out
