@@ -20,7 +20,9 @@ Conventions for a panel (follow them when adding one, e.g. a fitting panel)
   find) and their ``ColumnDataSource`` are built in the constructor. Every
   control is routed through the one ``_update()`` (``self._wire()``), which calls
   the subclass's ``_refresh()``; ``_refresh`` replaces ``source.data`` with a new
-  dict, never appends. ``_update()`` runs once at the end of the constructor.
+  dict, never appends. ``_update()`` runs once in the constructor *before* the
+  ``jupyter_bokeh.BokehModel`` is made, so the page starts from the first result
+  (later changes travel as document events).
   Use ``with panel.hold():`` to change several controls with one recompute.
 * **Errors are shown, never swallowed.** An exception in ``_refresh`` goes to the
   ``panel.errors`` Output widget and ``panel.last_error``; the plots keep the last
@@ -28,6 +30,8 @@ Conventions for a panel (follow them when adding one, e.g. a fitting panel)
 * **No side effects at import or in constructors:** no ``display()``, no
   ``output_notebook()``. Notebooks call
   ``bokeh.io.output_notebook(resources=INLINE, hide_banner=True)`` themselves.
+* **Log sliders** use fine steps (``step=0.001`` in the exponent): the browser
+  snaps a value set from code to the slider grid and sends the snapped value back.
 * **Look:** colours, dashes and fonts from :mod:`workbench.ui.style` (P. Tol's
   colour-blind-safe "bright" scheme; each loss part keeps its colour in every
   panel); log axes where the physics is log-log; axis labels with units; a hover

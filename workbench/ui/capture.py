@@ -113,6 +113,15 @@ class CapturePanel(PanelBase):
         c.capture.observe(self._capture_changed, names="value")
         self.upload.observe(self._uploaded, names="value")
         self._wire(skip=("capture",))
+        overrides = {"turns": turns, "sense_turns": sense_turns, "area": area, "volume": volume,
+                     "path_length": path_length, "material": material}
+        with self.hold():  # first result before the BokehModel is made, so the page starts with it
+            if demos:
+                self._apply_presets(start)
+            for name, value in overrides.items():
+                if value is not None:
+                    getattr(c, name).value = value
+            self._pending = True
         self.widget = widgets.VBox([
             heading("Captured waveform",
                     "One averaged period of flux, the B-H loop and where the loss goes; measured against predicted."),
@@ -127,15 +136,6 @@ class CapturePanel(PanelBase):
             caution_widget(),
             self.errors,
         ])
-        overrides = {"turns": turns, "sense_turns": sense_turns, "area": area, "volume": volume,
-                     "path_length": path_length, "material": material}
-        with self.hold():
-            if demos:
-                self._apply_presets(start)
-            for name, value in overrides.items():
-                if value is not None:
-                    getattr(c, name).value = value
-            self._pending = True
 
     # -- figures -------------------------------------------------------------------------
     def _build_figures(self):

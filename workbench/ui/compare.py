@@ -76,7 +76,7 @@ class ComparisonPanel(PanelBase):
         c.shape = widgets.Dropdown(options=list(SHAPES), value=shape, description="flux waveform", **_WIDE)
         c.duty = widgets.FloatSlider(value=duty, min=0.05, max=0.95, step=0.01, description="duty cycle D [-]",
                                      readout_format=".2f", **_WIDE)
-        c.b_peak = widgets.FloatLogSlider(value=b_peak, base=10, min=-3, max=0.4, step=0.005,
+        c.b_peak = widgets.FloatLogSlider(value=b_peak, base=10, min=-3, max=0.4, step=0.001,
                                           description="B_peak of loss plot [T]", readout_format=".3g", **_WIDE)
         c.loss_density = QuantityText(loss_density, unit="W/m3", name="loss density",
                                       description="allowed loss [W/m³] for f·B_peak")
@@ -98,6 +98,7 @@ class ComparisonPanel(PanelBase):
         self.export_bar = ExportBar(self.export, self.report_error, stem=self.export_stem)
         self.view: ComparisonView | None = None
         self._wire()
+        self._update()  # before the BokehModel is made, so the page starts with the first result
         self.widget = widgets.VBox([
             heading("Material comparison",
                     "Loss at one flux, and the f·B_peak each material reaches at one allowed loss, against frequency."),
@@ -110,7 +111,6 @@ class ComparisonPanel(PanelBase):
             caution_widget(),
             self.errors,
         ])
-        self._update()
 
     def _build_figures(self):
         self.loss_figure = fig = new_figure(
@@ -131,8 +131,8 @@ class ComparisonPanel(PanelBase):
                                     tooltips=[("material", "@material"), ("f", "$x{0.[000]a}Hz"),
                                               (what, f"$y{{0.[000]a}} {unit}")]))
             f.add_tools(hovers[-1])
-            f.legend.location = "bottom_right" if f is ffig else "top_left"
             style_figure(f)
+            f.add_layout(f.legend[0], "right")
         self.design_spans = []
         for f in (fig, ffig):
             span = Span(location=1.0, dimension="height", line_color=ROLE_COLOURS["marker"], line_dash="dashed",

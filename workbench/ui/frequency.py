@@ -89,11 +89,13 @@ class FrequencyPanel(PanelBase):
         c.shape = widgets.Dropdown(options=list(SHAPES), value=shape, description="flux waveform", **_SLIDER)
         c.duty = widgets.FloatSlider(value=duty, min=0.05, max=0.95, step=0.01, description="duty cycle D [-]",
                                      readout_format=".2f", **_SLIDER)
-        c.b_peak = widgets.FloatLogSlider(value=b_peak, base=10, min=-3, max=0.4, step=0.005,
+        # log sliders: fine steps (0.23 % per step), because the browser snaps a value set from code to
+        # the slider's grid and sends it back
+        c.b_peak = widgets.FloatLogSlider(value=b_peak, base=10, min=-3, max=0.4, step=0.001,
                                           description="B_peak [T]", readout_format=".3g", **_SLIDER)
-        c.thickness_mm = widgets.FloatLogSlider(value=d * 1e3, base=10, min=-2.5, max=1.5, step=0.005,
+        c.thickness_mm = widgets.FloatLogSlider(value=d * 1e3, base=10, min=-2.5, max=1.5, step=0.001,
                                                 description="thickness d [mm]", readout_format=".3g", **_SLIDER)
-        c.resistivity_uohm_m = widgets.FloatLogSlider(value=rho * 1e6, base=10, min=-2, max=12, step=0.01,
+        c.resistivity_uohm_m = widgets.FloatLogSlider(value=rho * 1e6, base=10, min=-2, max=12, step=0.001,
                                                       description="resistivity ρ [µΩ·m]", readout_format=".3g",
                                                       **_SLIDER)
         c.skin_effect = widgets.Checkbox(value=skin_effect, description="skin effect in the classical part",
@@ -113,6 +115,7 @@ class FrequencyPanel(PanelBase):
 
         c.material.observe(self._material_changed, names="value")
         self._wire(skip=("material",))
+        self._update()  # before the BokehModel is made, so the page starts with the first result
         self.widget = widgets.VBox([
             heading("Loss against frequency",
                     "Hysteresis, classical eddy and excess loss of one waveform shape; where eddy loss overtakes hysteresis."),
@@ -127,7 +130,6 @@ class FrequencyPanel(PanelBase):
             caution_widget(),
             self.errors,
         ])
-        self._update()
 
     # -- figures -------------------------------------------------------------------------
     def _build_figures(self):
@@ -156,10 +158,11 @@ class FrequencyPanel(PanelBase):
         self._spans = []
         self._span_labels = []
         for f in (fig, efig):
+            suffix = "" if f is fig else "_energy"
             cross = Span(location=1.0, dimension="height", line_color=ROLE_COLOURS["marker"], line_width=2.5,
-                         line_dash="dashed", visible=False)
+                         line_dash="dashed", visible=False, name=f"crossover_marker{suffix}")
             knee = Span(location=1.0, dimension="height", line_color=ROLE_COLOURS["classical"], line_width=2,
-                        line_dash="dotted", line_alpha=0.8, visible=False)
+                        line_dash="dotted", line_alpha=0.8, visible=False, name=f"knee_marker{suffix}")
             f.add_layout(cross)
             f.add_layout(knee)
             self._spans.append((cross, knee))
@@ -177,8 +180,8 @@ class FrequencyPanel(PanelBase):
             ("classical", "@e_classical{%.3g} J/m³"), ("excess", "@e_excess{%.3g} J/m³"),
             ("sum", "@e_total{%.3g} J/m³"), ("iGSE", "@e_steinmetz{%.3g} J/m³")]))
         for f in (fig, efig):
-            f.legend.location = "top_left"
             style_figure(f)
+            f.add_layout(f.legend[0], "right")  # outside the plot: the curves cross where a legend would sit
         self.plots = column(fig, efig, name="frequency_plots")
 
     # -- behaviour -----------------------------------------------------------------------

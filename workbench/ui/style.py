@@ -85,7 +85,7 @@ def style_figure(fig, *, legend: bool = True):
 
 
 def new_figure(name: str, *, title: str, x_label: str, y_label: str, x_log: bool = False, y_log: bool = False,
-               width: int = 820, height: int = 380):
+               width: int = 980, height: int = 380):
     """A bokeh figure with the workbench defaults and a ``name`` a browser test can find."""
     from bokeh.plotting import figure
 
