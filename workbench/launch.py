@@ -141,6 +141,11 @@ def main(argv=None) -> int:
         return 0
     env = {**os.environ, **plan.env}
     proc = subprocess.Popen(plan.argv, env=env)
+
+    def _stop(signum, frame):  # SIGTERM to the launcher stops its server too, not left orphaned
+        proc.terminate()
+
+    signal.signal(signal.SIGTERM, _stop)
     try:
         return proc.wait()
     except KeyboardInterrupt:
