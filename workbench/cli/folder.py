@@ -27,18 +27,13 @@ created then).
 from __future__ import annotations
 
 import argparse
-import csv
-import hashlib
-import io
 import json
 import math
 import os
 import sys
-import tempfile
-from dataclasses import dataclass
 from pathlib import Path
 
-from workbench.analysis.batch import is_result_log, run_batch
+from workbench.analysis.batch import _write_atomic, is_result_log, run_batch
 from workbench.cli.capture import (
     CAUTION,
     add_capture_options,
@@ -75,16 +70,6 @@ def settings_payload(args) -> dict:
     }
 
 
-def file_key(path: Path, settings: dict) -> str:
-    """SHA-256 of the file content followed by the canonical JSON of the settings."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
-    h.update(json.dumps(settings, sort_keys=True).encode())
-    return h.hexdigest()
-
-
 def analyse_one(path: str, settings: dict, key: str) -> dict:
     """Analyse one file and return its result row; user errors become an error row.
 
@@ -118,104 +103,6 @@ def analyse_one(path: str, settings: dict, key: str) -> dict:
     row.update(result.to_dict())
     row["file"] = path
     return row
-
-
-def csv_line(row: dict) -> str:
-    """One CSV line (with newline) of the fixed columns for a result row."""
-    buf = io.StringIO()
-    values = []
-    for col in CSV_COLUMNS:
-        v = row.get(col)
-        if col == "warnings":
-            v = " | ".join(v or ())
-        elif v is None:
-            v = ""
-        elif isinstance(v, float):
-            v = repr(v)
-        values.append(v)
-    csv.writer(buf, lineterminator="\n").writerow(values)
-    return buf.getvalue()
-
-
-@dataclass
-class RowWriter:
-    """Appends whole rows to the JSON-lines and CSV outputs (append + flush + fsync per row)."""
-
-    jsonl: Path
-    csv_path: Path
-
-    def open(self, *, fresh: bool) -> None:
-        mode = "w" if fresh else "a"
-        self._j = open(self.jsonl, mode, encoding="utf-8")
-        new_csv = fresh or not self.csv_path.exists() or self.csv_path.stat().st_size == 0
-        self._c = open(self.csv_path, mode, encoding="utf-8", newline="")
-        if new_csv:
-            self._write(self._c, csv_line({c: c for c in CSV_COLUMNS}))
-
-    @staticmethod
-    def _write(fh, text: str) -> None:
-        fh.write(text)
-        fh.flush()
-        os.fsync(fh.fileno())
-
-    def add(self, row: dict) -> None:
-        self._write(self._j, json.dumps(row, sort_keys=True, allow_nan=False, default=_jsonable) + "\n")
-        self._write(self._c, csv_line(row))
-
-    def close(self) -> None:
-        for fh in (getattr(self, "_j", None), getattr(self, "_c", None)):
-            if fh is not None:
-                fh.close()
-
-
-def _jsonable(value):
-    if hasattr(value, "tolist"):
-        return value.tolist()
-    raise TypeError(f"not JSON serialisable: {type(value).__name__}")
-
-
-def done_keys(jsonl: Path) -> set[str]:
-    """Keys of the complete, successful rows of an earlier run (a torn last line is ignored)."""
-    keys = set()
-    if not jsonl.exists():
-        return keys
-    with open(jsonl, encoding="utf-8") as fh:
-        for line in fh:
-            if not line.endswith("\n"):
-                break
-            try:
-                row = json.loads(line)
-            except json.JSONDecodeError:
-                continue
-            if row.get("status") == "ok" and row.get("key"):
-                keys.add(row["key"])
-    return keys
-
-
-def _trim_torn_line(path: Path) -> None:
-    """Drop an incomplete last line (a run killed mid-write) so appends start on a new line."""
-    if not path.exists() or path.stat().st_size == 0:
-        return
-    with open(path, "rb+") as fh:
-        data = fh.read()
-        if data.endswith(b"\n"):
-            return
-        cut = data.rfind(b"\n") + 1
-        fh.truncate(cut)
-
-
-def _write_atomic(path: Path, text: str) -> None:
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
 
 
 def summarise(rows: list[dict], skipped: int) -> dict:
