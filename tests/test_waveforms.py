@@ -201,11 +201,16 @@ def test_waveform_is_immutable():
 
 
 def test_resample_shift_scale_period():
+    # closed form: the triangle rises 0.2 T in 0.25 ms and falls 0.2 T in 0.75 ms; on an 8-point grid
+    # (0.125 ms) the rise takes 2 steps and the fall 6
     w = waveforms.triangle(0.1, 1e3, 0.25)
     r = w.resample(8)
     np.testing.assert_allclose(r.b, [-0.1, 0.0, 0.1, 0.1 - 0.2 / 6 * 1, 0.1 - 0.2 / 6 * 2, 0.1 - 0.2 / 6 * 3,
                                      0.1 - 0.2 / 6 * 4, 0.1 - 0.2 / 6 * 5], atol=1e-15)
-    assert w.shifted(0.5e-3).b[0] == pytest.approx(0.1 - 0.2 * (0.25 / 0.75))
+    # B(t - 0.5 ms) at t = 0 is B(0.5 ms), a quarter of a millisecond down the falling ramp
+    shifted = w.shifted(0.5e-3)
+    assert shifted.b[0] == pytest.approx(0.1 - 0.2 * (0.25 / 0.75))
+    np.testing.assert_allclose(shifted.t, [0.0, 0.5e-3, 0.75e-3])  # the vertices moved by 0.5 ms
     assert w.scaled(-2.0).b_peak == pytest.approx(0.2)
     assert w.with_period(2e-3).freq == pytest.approx(500.0)
 
