@@ -775,7 +775,8 @@ def pwm(
 
     The winding voltage is the bridge output ``v = V_dc * s(t)`` with the switching
     state s from natural sine-triangle comparison; the flux is its integral,
-    scaled so that the fundamental component of B has amplitude ``b_peak``.
+    scaled so that the fundamental component of B has amplitude ``b_peak`` (to
+    within the time resolution, see Notes).
     The result has many minor loops (one per carrier period), as in inverter
     output chokes and machine laminations fed by drives.
 
@@ -798,7 +799,9 @@ def pwm(
     -----
     The average of s over a carrier period follows ``m sin(w1 t)``, so the
     fundamental flux amplitude is ``m V_dc / (w1 N A)``; V_dc/(N A) is chosen as
-    ``b_peak w1 / m`` [1]_.
+    ``b_peak w1 / m`` [1]_, so every ramp has the exact slope of the bridge
+    voltage. Switching instants resolved on a grid of ``samples_per_carrier``
+    points move the fundamental by up to about 0.5 % from ``b_peak``.
 
     References
     ----------

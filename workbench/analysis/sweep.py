@@ -11,7 +11,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq
 
 from workbench import models
 from workbench.analysis.breakdown import steinmetz_k_at
@@ -221,6 +220,8 @@ def _crossover(laws: ShapeLaws, material, rho, d, mu_r, include_excess, f_range)
         sign = np.flatnonzero(np.diff(np.sign(g)) != 0)
         found = sign.size > 0
         if found:
+            from scipy.optimize import brentq  # imported here: keeps scipy.optimize off the import path
+
             i = int(sign[0])
             fx = float(np.exp(brentq(lambda lf: float(np.log(eddy(np.exp(lf))) - np.log(hyst(np.exp(lf)))),
                                      np.log(grid[i]), np.log(grid[i + 1]), xtol=1e-12, rtol=1e-10)))
