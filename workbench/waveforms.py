@@ -27,6 +27,7 @@ __all__ = [
     "from_samples",
     "from_voltage",
     "estimate_noise",
+    "quantisation_step",
     "reversal_indices",
 ]
 
@@ -395,7 +396,8 @@ def default_threshold(b) -> float:
     -------
     float
         Smallest flux swing counted as a reversal [T]: ``12 * estimate_noise(b)``,
-        at least ``1e-12`` times the peak-to-peak flux.
+        at least 2.5 quantisation steps (:func:`quantisation_step`) and
+        ``1e-12`` times the peak-to-peak flux.
 
     Notes
     -----
@@ -410,7 +412,48 @@ def default_threshold(b) -> float:
     """
     b = np.asarray(b, dtype=float)
     span = float(np.ptp(b)) if b.size else 0.0
-    return max(NOISE_THRESHOLD_SIGMAS * estimate_noise(b), 1e-12 * span)
+    # samples quantised coarser than their noise (an 8-bit record of clean flux)
+    # flicker by one or two steps: such swings are not loops either
+    return max(NOISE_THRESHOLD_SIGMAS * estimate_noise(b), 2.5 * quantisation_step(b), 1e-12 * span)
+
+
+def quantisation_step(b) -> float:
+    """Step of the grid the samples sit on, or 0 when they are not visibly quantised [unit of b].
+
+    Parameters
+    ----------
+    b : array_like
+        Samples [any unit]. Records longer than ``NOISE_SAMPLE_SIZE`` samples are
+        read at an even stride.
+
+    Returns
+    -------
+    float
+        The smallest non-zero sample-to-sample change q, when at least 95 % of the
+        non-zero changes are whole multiples of it (within 1 %) and it is at
+        least 1e-9 of the span; otherwise 0.
+
+    Notes
+    -----
+    A recorder of B bits over a range R stores multiples of R / 2**B; where the
+    signal moves by less than a few steps per sample its quantisation, not its
+    noise, sets the smallest swing that carries meaning.
+    """
+    b = np.asarray(b, dtype=float)
+    if b.size < 5:
+        return 0.0
+    step = max(1, (b.size - 1) // NOISE_SAMPLE_SIZE)
+    d = np.abs(b[1::step] - b[:-1:step])
+    d = d[d > 0]
+    span = float(np.ptp(b))
+    if d.size < 10 or span == 0:
+        return 0.0
+    q = float(d.min())
+    if q < 1e-9 * span:
+        return 0.0
+    ratio = d / q
+    whole = np.abs(ratio - np.round(ratio)) <= 0.01
+    return q if whole.mean() >= 0.95 else 0.0
 
 
 #: Block length of the quiet-block reduction in :func:`reversal_indices`.
