@@ -790,11 +790,6 @@ def analyse_record(
         waveform, n_dwells = flatten_dwells(waveform)
         if n_dwells:
             notes.append(f"{n_dwells} zero-voltage intervals set exactly flat (|dB/dt| below 10 % of its peak)")
-            if getattr(material, "relaxation", None) is not None:
-                notes.append(
-                    "the i2GSE relaxation term uses the slope just before each zero-voltage interval, which the "
-                    "capture's bandwidth and the denoising round off: from a capture it is a lower bound"
-                )
 
     if fold.n_periods < MIN_PERIODS:
         warnings.append(

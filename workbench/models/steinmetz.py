@@ -318,8 +318,17 @@ def flat_intervals(waveform: FluxWaveform, rel_slope: float = 1e-3):
         ends = np.append(ends, flat.size)
     csum = np.concatenate(([0.0], np.cumsum(dt)))
     duration = csum[ends] - csum[starts]
-    before = s[starts - 1]
-    after = s[ends % flat.size]
+    # the slope of a ramp is its median slope: a corner rounded by a capture's
+    # bandwidth or a filter would otherwise stand in for the whole ramp.
+    # Ramp r runs from the end of flat run r-1 to the start of flat run r; the
+    # first one wraps around the end of the period (hence the doubled array).
+    n = flat.size
+    s2 = np.concatenate((s, s))
+    ramp_lo = np.concatenate(([ends[-1]], ends[:-1]))
+    ramp_hi = np.concatenate(([starts[0] + n], starts[1:]))
+    slopes = np.array([np.median(s2[lo:hi]) for lo, hi in zip(ramp_lo, ramp_hi)])
+    before = slopes
+    after = np.roll(slopes, -1)
     return duration, before, after
 
 
