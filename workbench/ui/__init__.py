@@ -52,17 +52,20 @@ Panels
     Several materials: loss at one flux and the f * B_peak reachable at one loss density.
 :class:`CapturePanel`
     A captured waveform: one averaged period, B-H loop, breakdown, measured vs predicted.
+:class:`FitPanel`
+    A measured loss table against a fitted model, with intervals, residuals and saving.
 """
 from __future__ import annotations
 
 import importlib
 
-__all__ = ["FrequencyPanel", "ComparisonPanel", "CapturePanel"]
+__all__ = ["FrequencyPanel", "ComparisonPanel", "CapturePanel", "FitPanel"]
 
 _PANELS = {
     "FrequencyPanel": "workbench.ui.frequency",
     "ComparisonPanel": "workbench.ui.compare",
     "CapturePanel": "workbench.ui.capture",
+    "FitPanel": "workbench.ui.fit_panel",
 }
 
 
