@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from workbench import __version__
+from workbench import __version__, fileio
 from workbench.report import atomic_write_text, build_record, write_bundle, write_csv, write_html, write_json
 from workbench.report import export as export_module
 
@@ -70,7 +70,7 @@ def test_failed_write_keeps_the_old_file_and_leaves_no_temp(tmp_path, monkeypatc
     def broken_replace(src, dst):
         raise OSError("disk full (simulated)")
 
-    monkeypatch.setattr(export_module.os, "replace", broken_replace)
+    monkeypatch.setattr(fileio.os, "replace", broken_replace)
     with pytest.raises(OSError, match="simulated"):
         atomic_write_text(target, "new\n")
     assert target.read_text() == "old\n"

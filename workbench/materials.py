@@ -25,7 +25,6 @@ import functools
 import math
 import os
 import re
-import tempfile
 import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -33,6 +32,8 @@ from pathlib import Path
 from types import MappingProxyType
 
 import numpy as np
+
+from workbench.fileio import write_text_atomic
 
 __all__ = [
     "TemperatureCoefficients",
@@ -883,23 +884,7 @@ def _same_file(a: Path, b: Path) -> bool:
 
 
 def _write_atomic(path: Path, text: str) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    mode = path.stat().st_mode & 0o777 if path.exists() else None
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        if mode is not None:
-            os.chmod(tmp, mode)
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
+    write_text_atomic(path, text, newline="\n", make_parents=True)
 
 
 def save_user_material(material: Material, *, path=None, overwrite=False) -> Path:

@@ -33,7 +33,8 @@ import os
 import sys
 from pathlib import Path
 
-from workbench.analysis.batch import _write_atomic, is_result_log, run_batch
+from workbench.analysis.batch import is_result_log, run_batch
+from workbench.fileio import write_text_atomic
 from workbench.cli.capture import (
     CAUTION,
     add_capture_options,
@@ -205,7 +206,7 @@ def run(args) -> int:
     rows, skipped = list(result.rows), result.skipped
     summary = summarise(rows, skipped)
     summary.update(outputs={"jsonl": str(jsonl), "csv": str(csv_path), "summary": str(summary_path)})
-    _write_atomic(summary_path, json.dumps(summary, indent=2, sort_keys=True) + "\n")
+    write_text_atomic(summary_path, json.dumps(summary, indent=2, sort_keys=True) + "\n")
     if args.json:
         emit_json(summary)
     else:

@@ -22,9 +22,7 @@ import dataclasses
 import io
 import json
 import math
-import os
 import re
-import tempfile
 from collections.abc import Mapping
 from datetime import datetime, timezone
 from pathlib import Path
@@ -32,6 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from workbench import __version__
+from workbench.fileio import write_text_atomic
 
 __all__ = [
     "PACKAGE_NAME",
@@ -77,20 +76,7 @@ def atomic_write_text(path, text: str, *, encoding: str = "utf-8") -> Path:
         raise ValueError(f"export folder {str(folder)!r} does not exist (writing {str(dest)!r})")
     if dest.is_dir():
         raise ValueError(f"export path {str(dest)!r} is a folder, expected a file name")
-    fd, tmp = tempfile.mkstemp(prefix=f".{dest.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding=encoding, newline="") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, dest)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
-    return dest
+    return write_text_atomic(dest, text, encoding=encoding)
 
 
 def package_info() -> dict:
