@@ -10,7 +10,6 @@ import pytest
 
 from workbench import __version__, fileio
 from workbench.report import atomic_write_text, build_record, write_bundle, write_csv, write_html, write_json
-from workbench.report import export as export_module
 
 ROOT = Path(__file__).resolve().parents[1]
 
