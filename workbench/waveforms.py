@@ -887,6 +887,28 @@ def _fold_periods(t: np.ndarray, y: np.ndarray, period: float, samples: int | No
     return phase, mean, float(spread), n_periods
 
 
+def _checked_record(t, y, y_name: str, caller: str, min_samples: int):
+    """Flattened float copies of a sampled record, checked: equal lengths, enough
+    samples, finite values and strictly increasing time (errors name array and index)."""
+    t = np.asarray(t, dtype=float).ravel()
+    y = np.asarray(y, dtype=float).ravel()
+    if t.size != y.size:
+        raise ValueError(f"t and {y_name} must have the same length, got {t.size} and {y.size}")
+    if t.size < min_samples:
+        raise ValueError(f"{caller} needs at least {min_samples} samples, got {t.size}")
+    for name, arr in (("t", t), (y_name, y)):
+        bad = ~np.isfinite(arr)
+        if bad.any():
+            i = int(np.argmax(bad))
+            raise ValueError(f"{name} has a non-finite value at index {i}: {float(arr[i])!r}")
+    steps = np.diff(t)
+    if (steps <= 0).any():
+        i = int(np.argmax(steps <= 0))
+        kind = "duplicate" if steps[i] == 0 else "decreasing"
+        raise ValueError(f"t must be strictly increasing; {kind} time stamp at index {i + 1}: {float(t[i + 1])!r}")
+    return t, y, steps
+
+
 def from_samples(t, b, *, freq: float | None = None, samples: int | None = None) -> FluxWaveform:
     """Waveform from sampled flux covering one or more periods.
 
@@ -905,22 +927,7 @@ def from_samples(t, b, *, freq: float | None = None, samples: int | None = None)
     samples : int, optional
         Samples per period of the averaged waveform (only with ``freq``).
     """
-    t = np.asarray(t, dtype=float).ravel()
-    b = np.asarray(b, dtype=float).ravel()
-    if t.size != b.size:
-        raise ValueError(f"t and b must have the same length, got {t.size} and {b.size}")
-    if t.size < 2:
-        raise ValueError(f"from_samples needs at least 2 samples, got {t.size}")
-    for name, arr in (("t", t), ("b", b)):
-        bad = ~np.isfinite(arr)
-        if bad.any():
-            i = int(np.argmax(bad))
-            raise ValueError(f"{name} has a non-finite value at index {i}: {float(arr[i])!r}")
-    steps = np.diff(t)
-    if (steps <= 0).any():
-        i = int(np.argmax(steps <= 0))
-        kind = "duplicate" if steps[i] == 0 else "decreasing"
-        raise ValueError(f"t must be strictly increasing; {kind} time stamp at index {i + 1}: {float(t[i + 1])!r}")
+    t, b, steps = _checked_record(t, b, "b", "from_samples", 2)
     if freq is None:
         period = (t[-1] - t[0]) + steps[-1]
         return FluxWaveform(t - t[0], b, period)
@@ -996,22 +1003,7 @@ def from_voltage(t, v, *, turns: float, area: float, freq: float | None = None, 
        of the magnetic properties of magnetic powder cores and soft ferrites*
        (flux from the induced voltage of a sense winding).
     """
-    t = np.asarray(t, dtype=float).ravel()
-    v = np.asarray(v, dtype=float).ravel()
-    if t.size != v.size:
-        raise ValueError(f"t and v must have the same length, got {t.size} and {v.size}")
-    if t.size < 3:
-        raise ValueError(f"from_voltage needs at least 3 samples, got {t.size}")
-    for name, arr in (("t", t), ("v", v)):
-        bad = ~np.isfinite(arr)
-        if bad.any():
-            i = int(np.argmax(bad))
-            raise ValueError(f"{name} has a non-finite value at index {i}: {float(arr[i])!r}")
-    steps = np.diff(t)
-    if (steps <= 0).any():
-        i = int(np.argmax(steps <= 0))
-        kind = "duplicate" if steps[i] == 0 else "decreasing"
-        raise ValueError(f"t must be strictly increasing; {kind} time stamp at index {i + 1}: {float(t[i + 1])!r}")
+    t, v, steps = _checked_record(t, v, "v", "from_voltage", 3)
     if freq is not None:
         period = 1.0 / _as_positive(freq, "freq")
         step = np.median(np.diff(t))
