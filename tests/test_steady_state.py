@@ -158,3 +158,100 @@ def test_long_record_with_hundreds_of_periods():
     est = detect_period(t, y)
     assert est.freq == pytest.approx(freq, rel=1e-5)  # built at `freq`
     assert est.multiple > 100
+
+
+def _samples(period_samples, n, shape, *, noise=0.05, offset=0.7, drift=0.0, seed=0):
+    # record on a 10 ns grid; the period in samples is given (closed-form test signals)
+    rng = np.random.default_rng(seed)
+    i = np.arange(n)
+    t = i * 1e-8 + 1.3e-7
+    y = shape(2 * np.pi * i / period_samples) + offset + drift * i / n + rng.normal(0.0, noise, n)
+    return t, y
+
+
+@pytest.mark.parametrize("period_samples", [5000.3, 200.3])
+def test_long_record_on_block_means_keeps_sub_sample_precision(period_samples):
+    # 2 M samples: the coarse and fine estimates run on means of 16-sample blocks (or on a
+    # finer leading part for the 200-sample period); a drift of 2 units over the record is ignored
+    t, y = _samples(period_samples, 2_000_000, lambda w: np.arcsin(np.sin(w)) + 0.3 * np.sin(2 * w), drift=2.0)
+    est = detect_period(t, y)
+    assert est.period == pytest.approx(period_samples * 1e-8, rel=1e-6)  # built with this period
+
+
+@pytest.mark.parametrize("period_samples", [20.3, 8.3])
+def test_short_period_in_a_long_record_is_not_aliased(period_samples):
+    # periods of about one or two 16-sample blocks: the block means lose or alias the signal,
+    # so the period must come from the record at full resolution
+    t, y = _samples(period_samples, 2_000_000, np.sin)
+    est = detect_period(t, y)
+    assert est.period == pytest.approx(period_samples * 1e-8, rel=1e-5)  # built with this period
+
+
+def test_non_finite_sample_deep_in_a_long_record_is_named():
+    t, y = _samples(5000.3, 1_000_000, np.sin)
+    y[765_432] = np.nan
+    with pytest.raises(ValueError, match="index 765432"):
+        detect_period(t, y)
+
+
+def test_fold_with_non_integer_samples_per_period_matches_the_closed_form():
+    # 1000.37 samples a period: every period starts at a different sub-sample offset
+    p, n = 1000.37, 46_000
+    t, y = _samples(p, n, np.sin, noise=0.0, offset=0.0)
+    fold = fold_periods(t, y, p * 1e-8)
+    assert fold.n_periods == int((n - 1) // p)
+    expected = np.sin(2 * np.pi * fold.phase / (p * 1e-8))  # closed form at the output phases
+    # two linear interpolations of a sine with 1000 samples a period: error below
+    # 2 * (2 pi / 1000)^2 / 8 = 1e-5 (interpolation error bound h^2 |y''| / 8, common practice, no source)
+    np.testing.assert_allclose(fold.mean[0], expected, atol=1e-5)
+
+
+def test_fold_upsampled_to_the_record_end_matches_the_closed_form():
+    # more output samples than the record has a period, and the last period ends on the last sample
+    p = 400.0
+    t, y = _samples(p, int(3 * p) + 1, lambda w: np.sin(w) + 0.2 * np.cos(3 * w), noise=0.0, offset=0.0)
+    fold = fold_periods(t, y, p * 1e-8, samples=1600)
+    assert fold.n_periods == 3
+    w = 2 * np.pi * fold.phase / (p * 1e-8)
+    # linear interpolation bound h^2 |y''| / 8 with |y''| <= (1 + 1.8)(2 pi / 400)^2 (common practice, no source)
+    np.testing.assert_allclose(fold.mean[0], np.sin(w) + 0.2 * np.cos(3 * w), atol=1e-4)
+
+
+@pytest.mark.parametrize("period_samples, n", [(1000.37, 46_000), (2000.3, 2_000_000)])
+def test_fold_spread_is_the_sample_noise_at_any_alignment(period_samples, n):
+    # white noise of std s on J periods: RMS of (sample - average) is s*sqrt((J-1)/J)
+    # (sample variance about the mean, common practice, no source); the long record is
+    # judged on an even subset of its periods
+    s = 0.02
+    t, y = _samples(period_samples, n, np.sin, noise=s, offset=0.0, seed=7)
+    fold = fold_periods(t, y, period_samples * 1e-8)
+    j = fold.n_periods
+    assert fold.spread[0] == pytest.approx(s * np.sqrt((j - 1) / j) / 2.0, rel=0.03)
+
+
+def test_fold_of_an_uneven_record_reads_the_exact_times():
+    # a linear signal is reproduced exactly by linear interpolation whatever the sample times
+    rng = np.random.default_rng(3)
+    t = np.sort(rng.uniform(0.0, 1.0, 4000))
+    fold = fold_periods(t, 3.0 * t, 0.25)
+    expected = 3.0 * (t[0] + fold.phase + 0.25 * np.arange(fold.n_periods).mean())  # mean of the periods' lines
+    np.testing.assert_allclose(fold.mean[0], expected, rtol=1e-12)
+
+
+def test_uniform_grid_returns_an_exact_grid_without_copying():
+    t = np.arange(100_000) * 1e-7 + 2e-3
+    y = np.sin(t * 1e4)
+    tg, ys, resampled = uniform_grid(t, y)
+    assert not resampled
+    assert np.shares_memory(tg, t) and np.shares_memory(ys, y)
+
+
+def test_uniform_grid_names_a_bad_time_stamp():
+    t = np.arange(100_000) * 1e-7
+    t[54_321] = np.nan
+    with pytest.raises(ValueError, match="index 54321"):
+        uniform_grid(t, np.zeros(t.size))
+    t = np.arange(100_000) * 1e-7
+    t[60_000] = t[59_999]
+    with pytest.raises(ValueError, match="index 60000"):
+        uniform_grid(t, np.zeros(t.size))

@@ -19,7 +19,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import minimize_scalar
+from numpy.lib.stride_tricks import sliding_window_view
 
 from workbench.waveforms import estimate_noise
 
@@ -37,11 +37,43 @@ __all__ = [
 #: An autocorrelation peak counts as "the fundamental" when it reaches this share of the highest one.
 PEAK_SHARE = 0.9
 #: Longest record used for the coarse (FFT) period estimate, in samples; longer ones are block-averaged.
-COARSE_MAX_SAMPLES = 1 << 18
+COARSE_MAX_SAMPLES = 1 << 17
+#: Fewest block means per period for the fine estimate to run on the block-averaged record.
+MIN_BLOCKS_PER_PERIOD = 32
+#: Blocks read (at scattered positions) to measure how much variance block averaging removes.
+RETENTION_BLOCKS = 4096
+#: Samples handled at a time by the passes over a whole record (a size that stays in the cache).
+CHUNK = 1 << 15
+#: Rows of at least this many samples are accumulated one by one when folding, shorter ones in blocks.
+LONG_ROW = 1 << 15
+#: Most (period, phase) points used for the period-to-period spread of a fold.
+SPREAD_POINTS = 1 << 18
+#: Time stamps within this fraction of a step of the even grid are returned as they are.
+EXACT_GRID = 1e-6
 #: Harmonics are kept while their amplitude exceeds this many noise standard deviations of one bin.
 HARMONIC_SNR = 4.0
 #: Noise allowed on the slope after the low-pass, as a fraction of the RMS slope of the signal.
 SLOPE_NOISE_SHARE = 0.1
+
+_GOLDEN = 0.6180339887498949  # (sqrt(5) - 1) / 2: an evenly spread sequence i * g mod 1 that never repeats
+
+
+def _grid_deviation(t: np.ndarray, step: float) -> float:
+    """Largest |t_i - (t_0 + i step)| [s], one cache-sized chunk at a time; inf if t is not finite."""
+    n = t.size
+    base = np.arange(min(n, CHUNK), dtype=float) * step
+    buf = np.empty(base.size)
+    above = below = 0.0
+    for s in range(0, n, CHUNK):
+        e = min(n, s + CHUNK)
+        d = np.subtract(t[s:e], base[: e - s], out=buf[: e - s])
+        offset = t[0] + s * step
+        hi, lo = float(d.max()), float(d.min())
+        if not (np.isfinite(hi) and np.isfinite(lo)):
+            return np.inf
+        above = max(above, hi - offset)
+        below = max(below, offset - lo)
+    return max(above, below)
 
 
 def uniform_grid(t, channels):
@@ -67,9 +99,13 @@ def uniform_grid(t, channels):
     Notes
     -----
     Time stamps printed with few digits deviate from the ideal grid
-    :math:`t_0 + i\\,\\Delta t` by rounding; when every deviation is under half
-    an interval, the samples are kept and the ideal grid is used. Otherwise the
-    signals are linearly interpolated onto a grid with the median interval.
+    :math:`t_0 + i\\,\\Delta t` (with :math:`\\Delta t = (t_{N-1} - t_0)/(N-1)`) by
+    rounding; when every deviation is under half an interval, the samples are
+    kept and the ideal grid is used. Stamps within ``EXACT_GRID`` (1e-6) of an
+    interval of the ideal grid already are that grid up to floating-point
+    rounding, and are returned as they are (no copy; the values are not copied
+    either). Otherwise the signals are linearly interpolated onto a grid with
+    the median interval. The check runs over the record in cache-sized chunks.
     """
     t = np.asarray(t, dtype=float).ravel()
     y = np.atleast_2d(np.asarray(channels, dtype=float))
@@ -77,14 +113,16 @@ def uniform_grid(t, channels):
         raise ValueError(f"a record needs at least 3 samples, got {t.size}")
     if y.shape[1] != t.size:
         raise ValueError(f"channels must have {t.size} samples each, got shape {y.shape}")
+    step = (t[-1] - t[0]) / (t.size - 1)
+    dev = _grid_deviation(t, step) if np.isfinite(step) and step > 0 else np.inf
+    if dev <= EXACT_GRID * step:  # then every interval is within 2e-6 of `step`: increasing
+        return t, y, False
     steps = np.diff(t)
     if not (np.isfinite(t).all() and (steps > 0).all()):
         i = int(np.argmax(~(steps > 0))) + 1
         raise ValueError(f"time must be finite and strictly increasing; problem at index {i}: {t[i]!r}")
-    step = (t[-1] - t[0]) / (t.size - 1)
-    ideal = t[0] + np.arange(t.size) * step
-    if np.max(np.abs(t - ideal)) <= 0.5 * step:
-        return ideal, y, False
+    if dev <= 0.5 * step:
+        return t[0] + np.arange(t.size) * step, y, False
     step = float(np.median(steps))
     grid = t[0] + np.arange(int(np.floor((t[-1] - t[0]) / step)) + 1) * step
     return grid, np.array([np.interp(grid, t, row) for row in y]), True
@@ -139,18 +177,19 @@ class PeriodEstimate:
 
 
 def _block_mean(y: np.ndarray, factor: int) -> np.ndarray:
+    """Means of consecutive blocks of ``factor`` samples (a trailing partial block is dropped); no copy for 1."""
+    if factor == 1:
+        return y
     n = (y.size // factor) * factor
     return y[:n].reshape(-1, factor).mean(axis=1)
 
 
-def _unbiased_autocorrelation(y: np.ndarray) -> np.ndarray:
-    """r[m] = mean over the overlap of y[i] y[i+m], normalised so r[0] = 1, by FFT."""
-    n = y.size
+def _autocorrelation_sums(z: np.ndarray) -> np.ndarray:
+    """s[m] = sum over i < N - m of z[i] z[i+m], for m in [0, N), by FFT (zero-padded: no wrap-around)."""
+    n = z.size
     nfft = 1 << int(np.ceil(np.log2(2 * n)))
-    spec = np.fft.rfft(y, nfft)
-    r = np.fft.irfft(spec * np.conj(spec), nfft)[:n]
-    r /= np.arange(n, 0, -1)
-    return r / r[0]
+    spec = np.fft.rfft(z, nfft)
+    return np.fft.irfft(spec.real**2 + spec.imag**2, nfft)[:n]
 
 
 def _parabolic_peak(r: np.ndarray, i: int) -> tuple[float, float]:
@@ -165,11 +204,17 @@ def _parabolic_peak(r: np.ndarray, i: int) -> tuple[float, float]:
     return i + delta, float(b - 0.25 * (a - c) * delta)
 
 
-def _coarse_lag(y: np.ndarray) -> tuple[float, float]:
-    """Lag [samples] of the fundamental from the unbiased autocorrelation, and its correlation."""
-    r = _unbiased_autocorrelation(y)
+def _coarse_lag(sums: np.ndarray) -> tuple[float, float]:
+    """Lag [samples of the record it was computed on] of the fundamental, and its correlation.
+
+    ``sums`` are the autocorrelation sums of a record with its mean removed; the
+    unbiased estimate divides each by its overlap and is normalised to r[0] = 1.
+    """
+    n = sums.size
+    r = sums / np.arange(n, 0, -1)
+    r = r / r[0]
     # only lags with at least a third of the record overlapping are trusted
-    usable = r[: max(3, (2 * y.size) // 3)]
+    usable = r[: max(3, (2 * n) // 3)]
     neg = np.flatnonzero(usable < 0)
     if neg.size == 0:
         raise ValueError("no repeating pattern found: the signal never decorrelates (less than one period?)")
@@ -186,24 +231,187 @@ def _coarse_lag(y: np.ndarray) -> tuple[float, float]:
             "(signal not periodic, or mostly noise)"
         )
     chosen = int(inner[np.argmax(peaks >= PEAK_SHARE * best)]) + start
-    lag, value = _parabolic_peak(usable, chosen)
-    return lag, value
+    return _parabolic_peak(usable, chosen)
 
 
-def _mismatch(y: np.ndarray, lag: float, noise_var: float = 0.0) -> float:
-    """Variance of the difference between y and y shifted by a fractional lag [samples].
+@dataclass(frozen=True)
+class _Coarse:
+    """A record (mean removed) at some decimation, its autocorrelation sums and its coarse lag."""
 
-    The variance (not the mean square) ignores a constant difference, so a slow
-    drift or an offset left by integration does not bias the lag. Linear
-    interpolation at a fractional lag f averages the white noise of two samples,
-    lowering its variance to ((1-f)^2 + f^2) sigma^2, which would pull the
-    minimum towards half-sample lags; that term is subtracted.
-    """
+    z: np.ndarray
+    sums: np.ndarray
+    factor: int
+    lag: float
+    correlation: float
+
+
+def _coarse(z: np.ndarray, factor: int) -> _Coarse:
+    zc = z - z.mean()
+    if not np.any(zc):
+        raise ValueError("no repeating pattern found: the block means of the record are constant")
+    sums = _autocorrelation_sums(zc)
+    lag, corr = _coarse_lag(sums)
+    return _Coarse(zc, sums, factor, lag, corr)
+
+
+class _PrefixSums:
+    """Running sums of z, z^2 and z[i] z[i+1] of a record, for the mismatch at any lag in O(1)."""
+
+    def __init__(self, z: np.ndarray, sums: np.ndarray):
+        self.z = z
+        self.sums = sums
+        self.c1 = np.concatenate(([0.0], np.cumsum(z)))
+        self.c2 = np.concatenate(([0.0], np.cumsum(z * z)))
+        self.cp = np.concatenate(([0.0], np.cumsum(z[:-1] * z[1:])))
+
+    def quadratic(self, k: np.ndarray):
+        """Coefficients (var u, cov(u, v), var v) for lags k + f, 0 <= f <= 1 (k integer array)."""
+        z, n = self.z, self.z.size
+        c1, c2, cp, s = self.c1, self.c2, self.cp, self.sums
+        m = n - k - 1  # overlap: i = 0 .. m-1, A = z[i+k], B = z[i+k+1], C = z[i]
+        sa, sb, sc = c1[n - 1] - c1[k], c1[n] - c1[k + 1], c1[m]
+        saa, sbb, scc = c2[n - 1] - c2[k], c2[n] - c2[k + 1], c2[m]
+        sac = s[k] - z[n - 1 - k] * z[n - 1]
+        sab = cp[n - 1] - cp[k]
+        sbc = s[k + 1]
+        su, sv = sa - sc, sb - sa  # u = A - C (difference), v = B - A (step between samples)
+        suu = saa - 2.0 * sac + scc
+        svv = sbb - 2.0 * sab + saa
+        suv = sab - saa - sbc + sac
+        return suu / m - (su / m) ** 2, suv / m - su * sv / m**2, svv / m - (sv / m) ** 2
+
+
+def _direct_quadratic(z: np.ndarray, k: int):
+    """(var u, cov(u, v), var v) of :meth:`_PrefixSums.quadratic` summed directly (no running sums)."""
+    n = z.size
+    u = z[k:n - 1] - z[: n - 1 - k]
+    v = z[k + 1:] - z[k:n - 1]
+    mu, mv = u.mean(), v.mean()
+    u -= mu
+    v -= mv
+    return float(np.dot(u, u)) / u.size, float(np.dot(u, v)) / u.size, float(np.dot(v, v)) / u.size
+
+
+def _minimise(var_u, cov, var_v, noise_var: float, f_lo, f_hi):
+    """Minimum over f in [f_lo, f_hi] of the mismatch var(u + f v) - ((1-f)^2 + f^2) noise_var."""
+    a0 = np.asarray(var_u - noise_var, dtype=float)
+    a1 = np.asarray(cov + noise_var, dtype=float)
+    a2 = np.asarray(var_v - 2.0 * noise_var, dtype=float)
+    convex = a2 > 0
+    vertex = np.clip(-a1 / np.where(convex, a2, 1.0), f_lo, f_hi)
+    cands = np.stack([np.broadcast_to(f_lo, a0.shape), np.broadcast_to(f_hi, a0.shape),
+                      np.where(convex, vertex, f_lo)])
+    costs = a0 + 2.0 * a1 * cands + a2 * cands**2
+    best = np.argmin(costs, axis=0)
+    pick = np.take_along_axis(costs, best[None], 0)[0], np.take_along_axis(cands, best[None], 0)[0]
+    return pick
+
+
+def _refine(coarse: _Coarse, noise_var: float) -> tuple[float, int]:
+    """Lag of one period [samples of coarse.z] refined over growing multiples, and the last multiple."""
+    z = coarse.z
+    n = z.size
+    lag = coarse.lag
+    ps = _PrefixSums(z, coarse.sums)
+    uncertainty = 1.0  # of one period, in samples of z, before refinement
+    m, best = 1, None
+    while True:
+        half = min(3.0 * uncertainty * m + 1.0, 0.3 * lag)
+        lo = max(1.0, m * lag - half)
+        hi = min(n - 2.0, m * lag + half)
+        if hi > lo:
+            k = np.arange(int(lo), int(hi) + 1)
+            f_lo = np.clip(lo - k, 0.0, 1.0)
+            f_hi = np.clip(hi - k, 0.0, 1.0)
+            costs, fs = _minimise(*ps.quadratic(k), noise_var, f_lo, f_hi)
+            j = int(np.argmin(costs))
+            best = (int(k[j]), float(f_lo[j]), float(f_hi[j]), m)
+            lag = (k[j] + fs[j]) / m
+            uncertainty = 1.0 / m
+        # the largest multiple that still leaves one period of overlap, with the lag known so far
+        m_next = min(4 * m, max(1, int(np.floor((n - 1) / lag)) - 1))
+        if m_next <= m:
+            break
+        m = m_next
+    if best is None:
+        return lag, 1
+    # the chosen interval once more from direct sums, free of the rounding of the running sums
+    k_best, f_lo, f_hi, m = best
+    _, f_best = _minimise(*_direct_quadratic(z, k_best), noise_var, f_lo, f_hi)
+    return (k_best + float(f_best)) / m, m
+
+
+def _lag_correlation(y: np.ndarray, lag: float) -> float:
+    """1 - var(y(t + lag) - y(t)) / (var y(t + lag) + var y(t)) over the whole overlap (lag in samples)."""
     k = int(np.floor(lag))
     frac = lag - k
     shifted = (1 - frac) * y[k:-1] + frac * y[k + 1:]
     base = y[: shifted.size]
-    return float(np.var(shifted - base)) - ((1 - frac) ** 2 + frac**2) * noise_var
+    return 1.0 - float(np.var(shifted - base)) / (float(np.var(shifted)) + float(np.var(base)))
+
+
+def _keeps_signal(y: np.ndarray, z: np.ndarray, factor: int, noise_var: float) -> bool:
+    """True when the block means keep at least half the variance of the signal (white noise excluded).
+
+    The variance lost by averaging blocks is the mean variance within a block
+    (law of total variance), measured on up to RETENTION_BLOCKS blocks spread
+    over the record by a golden-ratio sequence.
+    """
+    nb = z.size
+    idx = (np.arange(min(nb, RETENTION_BLOCKS)) * _GOLDEN % 1.0 * nb).astype(np.intp)
+    rows = y[: nb * factor].reshape(nb, factor)[idx]
+    within = float(np.mean(rows.var(axis=1)))
+    kept = float(np.var(z)) - noise_var / factor
+    lost = within - noise_var * (1.0 - 1.0 / factor)
+    return kept >= lost
+
+
+def _check_finite(y: np.ndarray, z: np.ndarray, factor: int) -> None:
+    ok = bool(np.isfinite(z).all()) and bool(np.isfinite(y[z.size * factor:]).all())
+    if ok:
+        return
+    bad = ~np.isfinite(y)
+    if bad.any():
+        i = int(np.argmax(bad))
+        raise ValueError(f"signal has a non-finite value at index {i}: {y[i]!r}")
+    raise ValueError(f"signal values too large to average: largest magnitude {float(np.max(np.abs(y))):.6g}")
+
+
+def _choose_coarse(y: np.ndarray, z: np.ndarray, factor: int, noise_var: float) -> _Coarse:
+    """Coarse estimate on the block means, or on a finer leading part when the blocks blur the period."""
+    try:
+        whole = _coarse(z, factor)
+        error = None
+    except ValueError as exc:
+        whole, error = None, exc
+        if factor == 1 or np.ptp(y) == 0:
+            if not np.any(z - z.mean()):
+                raise ValueError("signal is constant: no period to detect") from None
+            raise
+    if factor == 1:
+        return whole
+    keeps = _keeps_signal(y, z, factor, noise_var)
+    if whole is not None and keeps and whole.lag >= MIN_BLOCKS_PER_PERIOD:
+        return whole
+    # the period is short against a block, or the block means lost most of the signal (a period
+    # under about two blocks aliases): the leading part at a finer decimation, down to every sample
+    d = 1
+    if whole is not None and keeps:
+        d = max(1, int(whole.lag * factor // (2 * MIN_BLOCKS_PER_PERIOD)))
+    seg = y[: min(y.size, COARSE_MAX_SAMPLES * d)]
+    try:
+        lead = _coarse(_block_mean(seg, d), d)
+    except ValueError:
+        if whole is None:
+            raise error from None
+        return whole
+    if whole is None or 1.5 * whole.lag * factor <= seg.size:
+        return lead  # the leading part saw the whole-record lag too and preferred this one
+    # the whole-record lag is too long for the leading part to judge: the shorter lag wins only
+    # if the full-resolution record repeats nearly as well there (the same 90 % rule)
+    if _lag_correlation(y, lead.lag * d) >= PEAK_SHARE * _lag_correlation(y, whole.lag * factor):
+        return lead
+    return whole
 
 
 def detect_period(t, y) -> PeriodEstimate:
@@ -214,7 +422,7 @@ def detect_period(t, y) -> PeriodEstimate:
     t : array_like
         Sample times, evenly spaced [s].
     y : array_like
-        The signal (flux, current or voltage) [any unit]; its mean is removed.
+        The signal (flux, current or voltage) [any unit]; its mean does not matter.
 
     Returns
     -------
@@ -224,12 +432,23 @@ def detect_period(t, y) -> PeriodEstimate:
     ------
     ValueError
         If the record is not evenly sampled, holds less than about 1.5 periods,
-        or shows no repeating pattern.
+        has a non-finite value, or shows no repeating pattern.
 
     Notes
     -----
+    A record longer than ``COARSE_MAX_SAMPLES`` (2^17) samples is first reduced
+    to the means of blocks of D = ceil(N / 2^17) samples; a lag of L blocks is
+    exactly a lag of L D samples, so the period can be found on the block means
+    as long as a period spans many blocks. That is checked: the block means must
+    keep at least half of the signal's variance (the variance lost is the mean
+    variance within a block, white noise discounted) and a period must span at
+    least 32 blocks; otherwise the leading 2^17 D' samples are used at a finer
+    D' (one sample when the blocks lost the signal, since a period under about
+    two blocks aliases to a false long one). The full record is read about
+    twice (block means, a sparse noise estimate) and never copied.
+
     1. Coarse estimate: the unbiased autocorrelation
-       :math:`r(m) = \\frac{1}{N-m}\\sum_i y_i y_{i+m}` by FFT [1]_; beyond its
+       :math:`r(m) = \\frac{1}{N-m}\\sum_i z_i z_{i+m}` by FFT [1]_; beyond its
        first zero crossing, the smallest lag whose local peak reaches 90 % of
        the highest peak (so a strong harmonic does not win, and a sub-multiple
        never does since the signal does not repeat there), refined by a
@@ -237,56 +456,43 @@ def detect_period(t, y) -> PeriodEstimate:
     2. Fine estimate, in stages m = 1, 4, 16, ... up to the largest whole
        multiple of the period that still leaves one period of overlap (each
        stage searches a window a few samples wide around m times the previous
-       estimate, so it cannot jump to a neighbouring multiple): the lag minimising the
-       difference :math:`\\mathrm{var}(y(t + mT) - y(t))` (linear
-       interpolation between samples, the interpolation's smoothing of white
-       noise subtracted, bounded scalar search); T is that lag / m.
-       The error of one lag is spread over m periods.
+       estimate, so it cannot jump to a neighbouring multiple): the lag
+       :math:`k + f` (k whole, 0 <= f <= 1) minimising the mismatch
+
+       .. math:: C(k + f) = \\mathrm{var}(u + f v) - ((1-f)^2 + f^2)\\,\\sigma_z^2,
+                 \\quad u_i = z_{i+k} - z_i, \\quad v_i = z_{i+k+1} - z_{i+k}
+
+       (z shifted by a fractional lag through linear interpolation; the
+       variance ignores an offset or a drift; the smoothing of white noise of
+       variance :math:`\\sigma_z^2` by the interpolation is subtracted). C is a
+       parabola in f on each whole-sample interval, so its minimum is found in
+       closed form from var u, cov(u, v) and var v; those come for every k from
+       running sums of z, z^2 and :math:`z_i z_{i+1}` and the autocorrelation
+       sums of step 1, and for the interval finally chosen from direct sums.
+       T is the lag / m: the error of one lag is spread over m periods.
 
     References
     ----------
     .. [1] J. S. Bendat, A. G. Piersol, *Random Data*, 4th ed., Wiley, 2010, sec. 11.4.
     .. [2] J. O. Smith, *Spectral Audio Signal Processing*, W3K, 2011.
+    .. [3] A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*,
+       3rd ed., Pearson, 2010, sec. 4.6 (averaging before downsampling, aliasing).
     """
     t = np.asarray(t, dtype=float).ravel()
     y = np.asarray(y, dtype=float).ravel()
     if t.size != y.size:
         raise ValueError(f"t and y must have the same length, got {t.size} and {y.size}")
-    if not np.isfinite(y).all():
-        i = int(np.argmax(~np.isfinite(y)))
-        raise ValueError(f"signal has a non-finite value at index {i}: {y[i]!r}")
     step = uniform_step(t)
-    y = y - y.mean()
-    if not np.any(y):
-        raise ValueError("signal is constant: no period to detect")
-    factor = max(1, int(np.ceil(y.size / COARSE_MAX_SAMPLES)))
-    yc = _block_mean(y, factor) if factor > 1 else y
-    lag_c, corr = _coarse_lag(yc - yc.mean())
-    lag = lag_c * factor
     n = y.size
-    m_max = max(1, int(np.floor((n - 1) / lag)) - 1)
+    factor = max(1, int(np.ceil(n / COARSE_MAX_SAMPLES)))
+    z = _block_mean(y, factor)
+    _check_finite(y, z, factor)
     noise_var = estimate_noise(y) ** 2
-    uncertainty = float(factor)  # of one period, in samples, before refinement
-    m = 1
-    while True:
-        half = min(3.0 * uncertainty * m + 1.0, 0.3 * lag)
-        lo = max(1.0, m * lag - half)
-        hi = min(n - 2.0, m * lag + half)
-        if hi > lo:
-            grid = np.linspace(lo, hi, 21)
-            costs = np.array([_mismatch(y, g, noise_var) for g in grid])
-            j = int(np.argmin(costs))
-            a, b = grid[max(j - 1, 0)], grid[min(j + 1, grid.size - 1)]
-            res = minimize_scalar(lambda g: _mismatch(y, g, noise_var), bounds=(a, b), method="bounded",
-                                  options={"xatol": 1e-4})
-            lag = float(res.x) / m
-            uncertainty = 1.0 / m
-        if m == m_max:
-            break
-        m = min(4 * m, m_max)
-    period = lag * step
+    coarse = _choose_coarse(y, z, factor, noise_var)
+    lag, m = _refine(coarse, noise_var / coarse.factor)
+    period = lag * coarse.factor * step
     return PeriodEstimate(period=period, freq=1.0 / period, n_periods=(n * step) / period,
-                          correlation=float(corr), multiple=m)
+                          correlation=float(coarse.correlation), multiple=m)
 
 
 @dataclass(frozen=True)
@@ -315,13 +521,71 @@ class FoldedPeriod:
     t_start: float
 
 
+def _shifted_row_sums(y: np.ndarray, starts: np.ndarray, weights: np.ndarray, width: int):
+    """S = sum_j y[a_j : a_j + width] and E = sum_j e_j y[a_j : a_j + width] (rows inside y)."""
+    total_s = np.zeros(width)
+    total_e = np.zeros(width)
+    if width >= LONG_ROW:  # long rows: one in-place pass per row, nothing copied
+        tmp = np.empty(width)
+        for a, e in zip(starts.tolist(), weights.tolist()):
+            row = y[a:a + width]
+            total_s += row
+            np.multiply(row, e, out=tmp)
+            total_e += tmp
+        return total_s, total_e
+    rows = sliding_window_view(y, width)
+    per = max(1, CHUNK // width)
+    for s in range(0, starts.size, per):
+        block = rows[starts[s:s + per]]  # a cache-sized copy of `per` rows
+        total_s += block.sum(axis=0)
+        total_e += weights[s:s + per] @ block
+    return total_s, total_e
+
+
+def _fold_even(y: np.ndarray, p: float, n_periods: int, samples: int):
+    """Mean and spread of whole periods of an evenly sampled row; p = period in samples."""
+    n = y.size
+    x = np.arange(n_periods) * p  # period starts [samples]
+    a = np.floor(x).astype(np.intp)
+    e = x - a
+    q = np.arange(samples) * (p / samples)  # output phases [samples]
+    qi = np.floor(q).astype(np.intp)
+    qf = q - qi
+    width = int(qi[-1]) + 3
+    inside = a + width <= n
+    total_s, total_e = _shifted_row_sums(y, a[inside], e[inside], width)
+    if not inside.all():  # the last period(s): the row runs past the record end, held at the last sample
+        idx = a[~inside][:, None] + np.arange(width)
+        block = np.take(y, idx, mode="clip")
+        total_s += block.sum(axis=0)
+        total_e += e[~inside] @ block
+    # the average at whole-sample phases m (each period read at j p + m), then at the output phases
+    at_samples = (total_s[:-1] - total_e[:-1] + total_e[1:]) / n_periods
+    mean = at_samples[qi] + qf * (at_samples[qi + 1] - at_samples[qi])
+    if n_periods == 1:
+        return mean, 0.0
+    # spread: each recorded sample against the average at its own phase (whole-sample phases m
+    # of period j lie at m - e_j); for long records an even subset of the periods
+    width = min(int(np.floor(p)), at_samples.size)
+    used = np.flatnonzero(a + width <= n)
+    if used.size * width > SPREAD_POINTS:
+        used = used[np.unique(np.round(np.linspace(0, used.size - 1, max(2, SPREAD_POINTS // width))).astype(np.intp))]
+    if width < 2 or used.size == 0:
+        return mean, 0.0
+    rows = sliding_window_view(y, width)[a[used]]
+    lead, here = at_samples[: width - 1], at_samples[1:width]
+    res = rows[:, 1:] - here
+    res -= e[used, None] * (lead - here)
+    return mean, float(np.sqrt(np.mean(res * res)))
+
+
 def fold_periods(t, channels, period: float, *, samples: int | None = None) -> FoldedPeriod:
     """Average the whole periods of one or more channels onto one period.
 
     Parameters
     ----------
     t : array_like
-        Sample times, increasing [s].
+        Sample times, increasing, normally evenly spaced [s].
     channels : array_like
         Signals, shape (samples,) or (channels, samples) [any unit].
     period : float
@@ -341,36 +605,59 @@ def fold_periods(t, channels, period: float, *, samples: int | None = None) -> F
 
     Notes
     -----
-    Period j is read at ``t_0 + j T + k T / n`` by linear interpolation, for the
-    ``floor(span / T)`` whole periods the record contains; the average is
-    :math:`\\bar y_k = \\frac{1}{J}\\sum_j y_{jk}` and the spread
+    Period j (of the :math:`J = \\lfloor \\mathrm{span} / T \\rfloor` whole
+    periods) starts at :math:`t_0 + jT`; the average is
+    :math:`\\bar y_k = \\frac{1}{J}\\sum_j y_{jk}` with :math:`y_{jk}` the record
+    at :math:`t_0 + jT + kT/n`, and the spread
     :math:`\\sqrt{\\langle (y_{jk} - \\bar y_k)^2\\rangle} / \\mathrm{pp}(\\bar y)`.
     Averaging J periods lowers uncorrelated noise by :math:`\\sqrt{J}`.
+
+    On an even grid (stamps within half a step of it, as :func:`uniform_grid`
+    accepts) the average is formed without reading the periods one point at a
+    time: with p = T / step samples a period and period j starting at sample
+    :math:`a_j + e_j` (:math:`a_j` whole, :math:`0 \\le e_j < 1`), the periods
+    read at whole-sample phases m by linear interpolation sum to
+    :math:`S_m - E_m + E_{m+1}` with :math:`S_m = \\sum_j y_{a_j+m}` and
+    :math:`E_m = \\sum_j e_j\\,y_{a_j+m}` (sums of shifted rows, a single pass over
+    the record); that average is then interpolated linearly at the phases
+    :math:`k p / n` (a second linear interpolation: at a record's own
+    resolution, corners are rounded over about one more sample than by reading
+    each period at the output phases). The spread is taken over the recorded
+    samples themselves, each against the average at its own phase
+    :math:`m - e_j` (no interpolation of the noisy record, so every sample
+    carries its full noise variance whatever its alignment); when that exceeds
+    2^18 samples, over an even subset of the periods. Uneven records
+    are read period by period by interpolation at the exact times.
     """
     t = np.asarray(t, dtype=float).ravel()
     y = np.atleast_2d(np.asarray(channels, dtype=float))
+    if t.size < 2:
+        raise ValueError(f"a record needs at least 2 samples, got {t.size}")
     if y.shape[1] != t.size:
         raise ValueError(f"channels must have {t.size} samples each, got shape {y.shape}")
     period = float(period)
     if not np.isfinite(period) or period <= 0:
         raise ValueError(f"period must be finite and positive, got {period!r}")
-    step = (t[-1] - t[0]) / (t.size - 1)
-    n_periods = int(np.floor((t[-1] - t[0]) / period + 1e-9))
+    span = t[-1] - t[0]
+    step = span / (t.size - 1)
+    n_periods = int(np.floor(span / period + 1e-9))
     if n_periods < 1:
-        raise ValueError(
-            f"the record spans {t[-1] - t[0]:.6g} s, less than one period of {period:.6g} s"
-        )
+        raise ValueError(f"the record spans {span:.6g} s, less than one period of {period:.6g} s")
     if samples is None:
         samples = int(round(period / step))
     samples = max(int(samples), 16)
     phase = np.arange(samples) * (period / samples)
-    times = (t[0] + phase[None, :] + period * np.arange(n_periods)[:, None]).ravel()
+    even = np.isfinite(step) and step > 0 and _grid_deviation(t, step) <= 0.5 * step
     means, spreads = [], []
     for row in y:
-        rows = np.interp(times, t, row).reshape(n_periods, samples)
-        avg = rows.mean(axis=0)
+        if even:
+            avg, rms = _fold_even(row, period / step, n_periods, samples)
+        else:
+            times = (t[0] + phase[None, :] + period * np.arange(n_periods)[:, None]).ravel()
+            rows = np.interp(times, t, row).reshape(n_periods, samples)
+            avg = rows.mean(axis=0)
+            rms = float(np.sqrt(np.mean((rows - avg) ** 2))) if n_periods > 1 else 0.0
         pp = float(np.ptp(avg))
-        rms = float(np.sqrt(np.mean((rows - avg) ** 2))) if n_periods > 1 else 0.0
         means.append(avg)
         spreads.append(rms / pp if pp > 0 else 0.0)
     return FoldedPeriod(phase=phase, mean=np.array(means), spread=np.array(spreads),
