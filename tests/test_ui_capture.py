@@ -36,9 +36,6 @@ def test_presets_from_the_capture_fill_the_boxes(panel):
         "100", "50", "2cm2", "0.25", "M270-35A")
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "capture analysis since commit 067132f (period refinement) finds 50.05 Hz on this 3.3-period record and "
-    "the averaged flux comes out about 15 % below Faraday's law; remove this mark when that is fixed"))
 def test_frequency_and_flux_match_an_independent_integration(panel):
     a = panel.view.analysis
     # the invented scenario in the file header: inverter-fed 50 Hz

@@ -54,6 +54,8 @@ EXACT_GRID = 1e-6
 HARMONIC_SNR = 4.0
 #: Noise allowed on the slope after the low-pass, as a fraction of the RMS slope of the signal.
 SLOPE_NOISE_SHARE = 0.1
+#: How often the fine search may move its window to follow a minimum on the window's edge.
+MAX_WINDOW_SHIFTS = 64
 
 _GOLDEN = 0.6180339887498949  # (sqrt(5) - 1) / 2: an evenly spread sequence i * g mod 1 that never repeats
 
@@ -317,17 +319,27 @@ def _refine(coarse: _Coarse, noise_var: float) -> tuple[float, int]:
     m, best = 1, None
     while True:
         half = min(3.0 * uncertainty * m + 1.0, 0.3 * lag)
-        lo = max(1.0, m * lag - half)
-        hi = min(n - 2.0, m * lag + half)
-        if hi > lo:
+        centre = m * lag
+        # the coarse peak of a record holding few periods can sit further off than one
+        # sample: while the minimum lands on the edge of the window, follow it
+        for _ in range(MAX_WINDOW_SHIFTS):
+            lo = max(1.0, centre - half)
+            hi = min(n - 2.0, centre + half)
+            if hi <= lo:
+                break
             k = np.arange(int(lo), int(hi) + 1)
             f_lo = np.clip(lo - k, 0.0, 1.0)
             f_hi = np.clip(hi - k, 0.0, 1.0)
             costs, fs = _minimise(*ps.quadratic(k), noise_var, f_lo, f_hi)
             j = int(np.argmin(costs))
             best = (int(k[j]), float(f_lo[j]), float(f_hi[j]), m)
-            lag = (k[j] + fs[j]) / m
+            found = k[j] + fs[j]
+            lag = found / m
             uncertainty = 1.0 / m
+            at_edge = (found <= lo + 1e-9 and lo > 1.0) or (found >= hi - 1e-9 and hi < n - 2.0)
+            if not at_edge or abs(found / m - coarse.lag) > 0.3 * coarse.lag:
+                break
+            centre = found
         # the largest multiple that still leaves one period of overlap, with the lag known so far
         m_next = min(4 * m, max(1, int(np.floor((n - 1) / lag)) - 1))
         if m_next <= m:
