@@ -45,7 +45,11 @@ class LoopSet:
     start : int
         Index of the original sample at which the rotated array starts.
     threshold : float
-        Smallest flux swing counted as a reversal [T].
+        Smallest flux swing counted as a reversal [T]; 0 when the waveform rises
+        and falls once per period and needed no threshold.
+    monotone : bool
+        True when the waveform rises once and falls once per period (one loop,
+        both halves monotonic), so the first passage is the whole path.
     """
 
     flux_pp: np.ndarray
@@ -55,6 +59,7 @@ class LoopSet:
     targets: np.ndarray
     start: int
     threshold: float
+    monotone: bool = False
 
     @property
     def n_minor(self) -> int:
@@ -80,6 +85,16 @@ def _rainflow_pairs(levels: np.ndarray):
             else:
                 break
     return cycles, stack
+
+
+def _single_swing(waveform: FluxWaveform):
+    """(index of the maximum, index of the minimum) when the flux rises once and falls once per
+    period, flat stretches allowed; otherwise None."""
+    d = waveform.segment_increments
+    rising = d[d != 0] > 0
+    if rising.size < 2 or np.count_nonzero(rising != np.roll(rising, 1)) != 2:
+        return None
+    return int(np.argmax(waveform.b)), int(np.argmin(waveform.b))
 
 
 def decompose_loops(waveform: FluxWaveform, threshold: float | None = None) -> LoopSet:
@@ -118,6 +133,18 @@ def decompose_loops(waveform: FluxWaveform, threshold: float | None = None) -> L
     """
     b = waveform.b
     n = b.size
+    if threshold is not None and not (np.isfinite(threshold) and threshold >= 0):
+        raise ValueError(f"threshold must be a finite non-negative number, got {threshold!r}")
+    single = _single_swing(waveform)
+    if single is not None:
+        # one rise and one fall: no reversal to filter, the major loop is the whole path
+        i_max, i_min = single
+        lo, hi = float(b[i_min]), float(b[i_max])
+        return LoopSet(
+            np.array([hi - lo]), np.array([lo]), np.array([hi]),
+            np.array([[[0, (i_min - i_max) % n], [(i_min - i_max) % n, n]]]), np.array([[lo, hi]]),
+            i_max, 0.0 if threshold is None else float(threshold), monotone=True,
+        )
     rev, threshold = _reversals(b, threshold)
     start = int(rev[0])
     pos = np.append((rev - start) % n, n)  # positions in the rotated, closed array
@@ -368,6 +395,8 @@ def loop_path_integrals(waveform: FluxWaveform, loops: LoopSet, segment_weight: 
         raise ValueError(
             f"segment_weight must have one entry per segment ({waveform.b.size}), got shape {weight.shape}"
         )
+    if loops.monotone:
+        return np.array([float(np.sum(weight * np.abs(waveform.segment_increments)))])
     return _loop_integrals(waveform, loops, _ArrayWeight(weight))
 
 
@@ -401,4 +430,6 @@ def loop_abs_dbdt_integrals(waveform: FluxWaveform, loops: LoopSet, exponent: fl
     .. [1] K. Venkatachalam, C. R. Sullivan, T. Abdallah, H. Tacca, IEEE COMPEL
        2002, eq. (11) and sec. IV.
     """
+    if loops.monotone:
+        return np.array([waveform.mean_abs_dbdt_power(exponent) * waveform.period])
     return _loop_integrals(waveform, loops, _SlopeWeight(waveform, exponent))
