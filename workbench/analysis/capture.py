@@ -265,6 +265,7 @@ class CaptureAnalysis:
         if self.model is not None:
             out["loss_model"] = self.model.total_model
             out["n_minor_loops"] = self.model.n_minor_loops
+            out["minor_loop_share"] = self.model.minor_loop_share
             out["loss_w_kg"] = self.model.total_w_kg
         if self.hysteresis is not None:
             out["hysteresis_w_m3"] = self.hysteresis

@@ -161,11 +161,16 @@ def render(result) -> str:
     if result.model_name:
         rows.append(("model", result.model_name + (f" ({result.model.total_model})" if result.model else " (iGSE)")))
     rows.append(("model loss", _fmt(result.model_loss, "W/m3")))
+    if result.model is not None and result.model.n_minor_loops:
+        rows.append(("  from minor loops", f"{100 * result.model.minor_loop_share:.1f} % "
+                                           f"({result.model.n_minor_loops} loops)"))
     if result.hysteresis is not None:
-        rows += [("  hysteresis", _fmt(result.hysteresis, "W/m3")), ("  classical eddy", _fmt(result.classical, "W/m3")),
+        separation = result.hysteresis + result.classical + result.excess
+        rows += [("separation model", _fmt(separation, "W/m3")),
+                 ("  hysteresis", _fmt(result.hysteresis, "W/m3")), ("  classical eddy", _fmt(result.classical, "W/m3")),
                  ("  excess", _fmt(result.excess, "W/m3"))]
     elif result.classical is not None:
-        rows.append(("  classical eddy", _fmt(result.classical, "W/m3")))
+        rows.append(("classical eddy part", _fmt(result.classical, "W/m3")))
     if result.kind == "two-winding":
         rows.append(("measured loss", _fmt(result.measured_loss, "W/m3")))
         if result.ratio is not None:
