@@ -65,11 +65,14 @@ def run(args) -> int:
             (f"loss ({out['loss_model']})", format_quantity(total, "W/m3", 4))]
     if bd is not None:
         rows.append(("loss per mass", format_quantity(bd.total_w_kg, "W/kg", 4)))
+    if bd is not None and bd.n_minor_loops:
+        rows.append(("  from minor loops", f"{100 * bd.minor_loop_share:.1f} % ({bd.n_minor_loops} loops)"))
     if hyst is not None:
-        rows += [("  hysteresis", format_quantity(hyst, "W/m3", 4)), ("  classical eddy", format_quantity(classical, "W/m3", 4)),
+        rows += [("separation model", format_quantity(hyst + classical + excess, "W/m3", 4)),
+                 ("  hysteresis", format_quantity(hyst, "W/m3", 4)), ("  classical eddy", format_quantity(classical, "W/m3", 4)),
                  ("  excess", format_quantity(excess, "W/m3", 4))]
     elif classical is not None:
-        rows.append(("  classical eddy", format_quantity(classical, "W/m3", 4)))
+        rows.append(("classical eddy part", format_quantity(classical, "W/m3", 4)))
     print(table(rows))
     for w in out.get("warnings", []):
         print(f"warning: {w}")
