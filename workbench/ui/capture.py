@@ -7,12 +7,12 @@ import io
 from pathlib import Path
 
 import ipywidgets as widgets
-import numpy as np
 from bokeh.layouts import column
 from bokeh.models import ColumnDataSource, HoverTool, Label
 from jupyter_bokeh import BokehModel
 
 import workbench
+from workbench.units import format_quantity
 from workbench.capture import read_capture
 from workbench.materials import list_materials
 from workbench.ui.base import PanelBase
@@ -250,9 +250,12 @@ class CapturePanel(PanelBase):
         def num(x, fmt):
             return "-" if x is None else format(x, fmt)
 
-        head = "<tr><th>loss</th><th>W/m³</th><th>W/kg</th><th>W in this core</th></tr>"
+        def density(x):
+            return "-" if x is None else format_quantity(x, "W/m3", 4).replace("W/m3", "W/m³")
+
+        head = "<tr><th>loss</th><th>loss density</th><th>W/kg</th><th>W in this core</th></tr>"
         body = "".join(
-            f'<tr><td style="padding:1px 10px">{html.escape(label)}</td><td style="padding:1px 10px">{num(wm3, ".4g")}</td>'
+            f'<tr><td style="padding:1px 10px">{html.escape(label)}</td><td style="padding:1px 10px">{density(wm3)}</td>'
             f'<td style="padding:1px 10px">{num(wkg, ".3g")}</td><td style="padding:1px 10px">{num(w, ".3g")}</td></tr>'
             for label, wm3, wkg, w in view.loss_rows)
         if not view.loss_rows:
