@@ -6,20 +6,21 @@ built from that row, without a Python loop over rows or samples.
 
 How it works
 ------------
-For piecewise-linear flux every segment k contributes
-``|dB_k|**alpha * dt**(1-alpha) * (g_k / |dB_k|) * (Delta B_j)**(beta-alpha)``
-where ``g_k`` is the part of the segment's flux change that its loop j owns
-(first passage) and ``Delta B_j`` the loop's peak-to-peak flux. The power
-``|dB_k|**alpha`` is the expensive part and is shared by every loop procedure;
-only the ownership weight changes.
+For piecewise-linear flux every segment i contributes
+``c_i * (Delta B_j)**(beta-alpha)`` where ``c_i = |dB_i|**alpha * dt**(1-alpha)``
+times the share of the segment's flux change that its loop j owns (first
+passage), and ``Delta B_j`` is that loop's peak-to-peak flux. The power
+``|dB_i|**alpha`` is the expensive part and is computed once per sample; the
+loop procedure only decides which weight each piece of flux path gets.
 
-* Rows whose flux goes once down and once up (two turning points: sine,
-  triangle, trapezoid, ...) own every segment fully in the major loop: the row's
-  loss is ``flux_pp**(beta-alpha)`` times the plain sum.
-* Rows with more turning points go through a vectorised minor-loop pass over all
-  such rows together: reversal detection with the data-derived noise threshold,
-  rainflow pairing (a loop over reversal *positions*, vectorised across rows),
-  and the ownership of each leg's flux levels by the loops that close during it.
+* One pass over every row computes ``|dB|**alpha``, its row sum, the row's
+  peak-to-peak flux and its number of turning points (flat stretches skipped).
+  Rows that rise once and fall once per period (sine, triangle, trapezoid, ...)
+  are done: their loss is ``flux_pp**(beta-alpha)`` times the sum.
+* Rows with more turning points are buffered (their ``|dB|**alpha`` and their
+  turning points) and handled together, many hundred rows at a time, with work
+  that grows with the number of *reversals*, not samples, plus one segmented
+  sum (``np.add.reduceat``) over their samples.
 
 Ownership by levels
 -------------------
@@ -27,10 +28,21 @@ Between two consecutive reversals (a *leg*) the flux stays within the two
 reversal levels. When the leg ends at reversal d, rainflow closes the loops
 (b1, c1), (b2, c2), ... in turn; the leg's levels from its start to the level of
 b1 belong to loop 1, from b1 to b2 to loop 2, and so on, and the remainder to
-the half-loop that leaves the stack element below d. Within a leg, a sample
-owns the levels beyond the leg's running extreme (first passage), so noise
-wiggles below the threshold add nothing, exactly as in
-:func:`workbench.models.loop_path_integrals`.
+the half-loop that leaves the stack element below d. On a monotone leg the flux
+reaches a level once, so each boundary level is one sample interval found by a
+vectorised binary search over the leg, and the leg splits into index ranges
+whose sums come from one ``reduceat``; the segment that crosses a boundary is
+shared in proportion to its flux change. On a leg that still holds wiggles
+below the reversal threshold, a sample owns only the levels beyond the leg's
+running extreme (first passage), exactly as in
+:func:`workbench.models.loop_path_integrals`; such legs get their per-sample
+shares from a running maximum and are searched on it.
+
+The reversal threshold only matters where a swing between turning points is
+smaller than it. Before the median-based noise estimate is computed for a row,
+a cheap count proves for most clean rows that the threshold lies below every
+swing (at least half of the second differences are small enough, so their
+median is); only the other rows pay for the median and for pruning.
 
 References
 ----------
@@ -46,16 +58,25 @@ from __future__ import annotations
 import numpy as np
 
 from workbench.models.steinmetz import igse_coefficient
-from workbench.waveforms import NOISE_THRESHOLD_SIGMAS
+from workbench.waveforms import _REDUCE_MIN_SAMPLES, NOISE_SAMPLE_SIZE, NOISE_THRESHOLD_SIGMAS
 
-__all__ = ["igse_batch", "batch_thresholds", "CHUNK_SAMPLES"]
+__all__ = ["igse_batch", "batch_thresholds", "CHUNK_SAMPLES", "MINOR_SAMPLES"]
 
-#: Samples processed per chunk of rows: keeps temporaries in cache and memory bounded.
+#: Samples processed per chunk of rows in the pass over every row: keeps temporaries in cache.
 CHUNK_SAMPLES = 1 << 17
+
+#: Samples of minor-loop rows buffered before they are handled together: large enough that
+#: the per-reversal Python loop of the rainflow pairing is spread over many rows.
+MINOR_SAMPLES = 1 << 20
+
+#: Standard deviation of white noise per unit median absolute second difference.
+_MAD_SCALE = 0.6745 * np.sqrt(6.0)
+
+_EPS = np.finfo(float).eps
 
 
 def _check_batch(b, period, threshold):
-    arr = np.asarray(b, dtype=float)
+    arr = np.ascontiguousarray(b, dtype=float)
     if arr.ndim != 2:
         raise ValueError(f"b must be a 2-D array (n_waveforms, n_samples), got shape {arr.shape}")
     if arr.shape[1] < 2:
@@ -88,6 +109,52 @@ def _check_batch(b, period, threshold):
     return arr, per, thr
 
 
+# ---------------------------------------------------------------------------
+# reversal thresholds
+# ---------------------------------------------------------------------------
+def _row_noise(b: np.ndarray) -> np.ndarray:
+    """Robust noise standard deviation of each row, as :func:`workbench.waveforms.estimate_noise`."""
+    n = b.shape[1]
+    if n < 5:
+        return np.zeros(b.shape[0])
+    s = max(1, (n - 2) // NOISE_SAMPLE_SIZE)
+    d2 = b[:, 2::s] - 2.0 * b[:, 1:-1:s] + b[:, :-2:s]
+    return np.median(np.abs(d2), axis=1) / _MAD_SCALE
+
+
+def _row_quantisation(b: np.ndarray, span: np.ndarray) -> np.ndarray:
+    """Quantisation step of each row, as :func:`workbench.waveforms.quantisation_step`."""
+    n_rows, n = b.shape
+    if n < 5:
+        return np.zeros(n_rows)
+    s = max(1, (n - 1) // NOISE_SAMPLE_SIZE)
+    dq = np.abs(b[:, 1::s] - b[:, :-1:s])
+    pos = dq > 0
+    cnt = np.count_nonzero(pos, axis=1)
+    qmin = np.where(pos, dq, np.inf).min(axis=1)
+    ok = (cnt >= 10) & (span != 0) & (qmin >= 1e-9 * span)
+    out = np.zeros(n_rows)
+    if ok.any():
+        ratio = dq[ok] / qmin[ok, None]
+        whole = (np.abs(ratio - np.round(ratio)) <= 0.01) & pos[ok]
+        frac = np.count_nonzero(whole, axis=1) / cnt[ok]
+        out[ok] = np.where(frac >= 0.95, qmin[ok], 0.0)
+    return out
+
+
+def _reversal_thresholds(b: np.ndarray) -> np.ndarray:
+    """The threshold :func:`workbench.models.igse` derives for each row [T].
+
+    Below ``_REDUCE_MIN_SAMPLES`` samples it is :func:`workbench.waveforms.default_threshold`;
+    longer periods use the noise and span terms only, as the single-waveform reversal search does.
+    """
+    span = b.max(axis=1) - b.min(axis=1)
+    h = np.maximum(NOISE_THRESHOLD_SIGMAS * _row_noise(b), 1e-12 * span)
+    if b.shape[1] < _REDUCE_MIN_SAMPLES:
+        h = np.maximum(h, 2.5 * _row_quantisation(b, span))
+    return h
+
+
 def batch_thresholds(b) -> np.ndarray:
     """Data-derived reversal threshold of each row [T].
 
@@ -99,9 +166,10 @@ def batch_thresholds(b) -> np.ndarray:
     Returns
     -------
     ndarray
-        Per row, ``max(12 * noise, 1e-12 * ptp)`` where the noise is the robust
-        standard deviation from the median absolute second difference, the same
-        rule as :func:`workbench.waveforms.default_threshold`.
+        Per row, ``max(12 * noise, 2.5 * q, 1e-12 * ptp)`` where the noise is the
+        robust standard deviation from the median absolute second difference and
+        q the quantisation step of the samples (0 when they are not visibly
+        quantised): the rule of :func:`workbench.waveforms.default_threshold`.
 
     Notes
     -----
@@ -115,41 +183,121 @@ def batch_thresholds(b) -> np.ndarray:
     b = np.asarray(b, dtype=float)
     if b.ndim != 2:
         raise ValueError(f"b must be a 2-D array, got shape {b.shape}")
-    span = np.ptp(b, axis=1) if b.shape[1] else np.zeros(b.shape[0])
-    if b.shape[1] < 5:
-        noise = np.zeros(b.shape[0])
-    else:
-        d2 = b[:, 2:] - 2.0 * b[:, 1:-1] + b[:, :-2]
-        noise = np.median(np.abs(d2), axis=1) / (0.6745 * np.sqrt(6.0))
-    return np.maximum(NOISE_THRESHOLD_SIGMAS * noise, 1e-12 * span)
+    if b.shape[1] == 0:
+        return np.zeros(b.shape[0])
+    span = b.max(axis=1) - b.min(axis=1)
+    h = np.maximum(NOISE_THRESHOLD_SIGMAS * _row_noise(b), 1e-12 * span)
+    return np.maximum(h, 2.5 * _row_quantisation(b, span))
 
 
-def _turning_counts(d: np.ndarray) -> np.ndarray:
-    """Number of slope sign changes per row of a periodic increment array, flats skipped."""
+def _threshold_below_swings(d, rows, s_min, b_abs):
+    """Rows whose 12-sigma noise term is proven not to exceed their smallest swing.
+
+    At least ``m // 2 + 1`` of the ``m`` absolute second differences at or below
+    ``t`` put their median at or below ``t``. The differences are taken here from
+    the increments, ``(b2 - b1) - (b1 - b0)``, which differ from the noise
+    estimate's ``b2 - 2 b1 + b0`` by less than ``8 eps max|b|``; the test uses
+    twice that margin, and ``t`` a relative margin of 1e-9 against rounding.
+    """
+    n = d.shape[1]
+    m = n - 2
+    need = m // 2 + 1
+    t = s_min * (_MAD_SCALE / NOISE_THRESHOLD_SIGMAS) * (1.0 - 1e-9) - 16.0 * _EPS * b_abs
+    ok = np.zeros(rows.size, dtype=bool)
+    # first the leading part of each row: usually enough small differences there
+    width = min(m, need + max(8, m // 8))
+    todo = np.flatnonzero(t > 0)
+    for w in (width, m):
+        if todo.size == 0:
+            break
+        dr = d[rows[todo], : w + 1]
+        dd = np.subtract(dr[:, 1:], dr[:, :-1])
+        np.abs(dd, out=dd)
+        small = np.count_nonzero(dd <= t[todo, None], axis=1) >= need
+        ok[todo[small]] = True
+        todo = todo[~small]
+        if w == m:
+            break
+    return ok
+
+
+# ---------------------------------------------------------------------------
+# turning points
+# ---------------------------------------------------------------------------
+def _compressed_turns(up_rows: np.ndarray, nz_rows: np.ndarray):
+    """Turning points of rows with flat segments: sign changes of the non-zero increments.
+
+    Returns the number of turning points per row and the flat (row * n + column)
+    index of each, a turning point being the first sample of the first non-flat
+    segment in the new direction (as :func:`workbench.waveforms.reversal_indices`).
+    """
+    n_rows, n = up_rows.shape
+    cnt = np.count_nonzero(nz_rows, axis=1)
+    where_nz = np.flatnonzero(nz_rows)
+    sc = up_rows.reshape(-1)[where_nz]
+    ends = np.cumsum(cnt)
+    starts = ends - cnt
+    change = np.empty(sc.size, dtype=bool)
+    np.not_equal(sc[1:], sc[:-1], out=change[1:])
+    has = cnt > 0
+    change[starts[has]] = sc[starts[has]] != sc[ends[has] - 1]
+    counts = np.zeros(n_rows, dtype=np.intp)
+    cs = np.zeros(sc.size + 1, dtype=np.intp)
+    np.cumsum(change, out=cs[1:])
+    counts[has] = cs[ends[has]] - cs[starts[has]]
+    return counts, where_nz[change]
+
+
+def _turning_info(d: np.ndarray, a: np.ndarray):
+    """Turning-point count of every row and the change mask for rows without flats.
+
+    Returns (counts, up, change, flat) where ``change[r, i]`` marks sample i as a
+    turning point of row r (valid for rows without flat segments) and ``flat``
+    marks the rows that have flat segments (their counts come from the compressed
+    sign sequence).
+    """
+    n_rows, n = d.shape
     up = d > 0
-    has_zero = ~np.all(d != 0, axis=1)
-    counts = np.count_nonzero(up[:, 1:] != up[:, :-1], axis=1) + (up[:, 0] != up[:, -1])
-    if has_zero.any():
-        dz = d[has_zero]
-        n = dz.shape[1]
-        s = np.sign(dz).astype(np.int8)
-        nz = s != 0
-        idx = np.where(nz, np.arange(n), -1)
-        np.maximum.accumulate(idx, axis=1, out=idx)
-        last = idx[:, -1]
-        idx = np.where(idx < 0, last[:, None], idx)
-        filled = np.take_along_axis(s, np.maximum(idx, 0), axis=1)
-        cz = np.count_nonzero(filled[:, 1:] != filled[:, :-1], axis=1) + (filled[:, 0] != filled[:, -1])
-        cz[last < 0] = 0
-        counts[has_zero] = cz
-    return counts
+    change = np.empty((n_rows, n), dtype=bool)
+    np.not_equal(up[:, 1:], up[:, :-1], out=change[:, 1:])
+    np.not_equal(up[:, 0], up[:, -1], out=change[:, 0])
+    counts = np.count_nonzero(change, axis=1)
+    flat = a.min(axis=1) == 0
+    if flat.any():
+        fr = np.flatnonzero(flat)
+        counts[fr] = _compressed_turns(up[fr], d[fr] != 0)[0]
+    return counts, up, change, flat
 
 
-def _prune(r_ids, pos, lev, h, n_rows):
+def _minor_turns(d, up, change, flat, rows):
+    """Sorted (row rank, column) of the turning points of the given rows."""
+    n = d.shape[1]
+    keys = []
+    plain = ~flat[rows]
+    if plain.any():
+        k = np.flatnonzero(change[rows[plain]])
+        rank = np.flatnonzero(plain)
+        keys.append(rank[k // n] * n + k % n)
+    if not plain.all():
+        rank = np.flatnonzero(~plain)
+        fr = rows[rank]
+        k = _compressed_turns(up[fr], d[fr] != 0)[1]
+        keys.append(rank[k // n] * n + k % n)
+    key = np.concatenate(keys) if len(keys) > 1 else keys[0]
+    if len(keys) > 1:
+        key.sort()
+    return key // n, key % n
+
+
+# ---------------------------------------------------------------------------
+# reversal pruning and rainflow pairing on the reversal lists of many rows
+# ---------------------------------------------------------------------------
+def _prune(r_ids, idx, lev, h, n_rows):
     """Remove inner reversal pairs smaller than the row's threshold, all rows at once.
 
     The same passes as :func:`workbench.waveforms.reversal_indices`, each one
-    vectorised over the concatenated reversal lists of all rows.
+    vectorised over the concatenated reversal lists of all rows. ``idx`` is
+    carried along (the entry's index before pruning).
     """
     inf = np.inf
     while lev.size > 3:
@@ -186,8 +334,8 @@ def _prune(r_ids, pos, lev, h, n_rows):
         keep = np.ones(lev.size, dtype=bool)
         keep[cand] = False
         keep[cand + 1] = False
-        r_ids, pos, lev = r_ids[keep], pos[keep], lev[keep]
-    return r_ids, pos, lev
+        r_ids, idx, lev = r_ids[keep], idx[keep], lev[keep]
+    return r_ids, idx, lev
 
 
 def _rainflow(levp, lengths, expo):
@@ -196,7 +344,7 @@ def _rainflow(levp, lengths, expo):
     Parameters
     ----------
     levp : ndarray, shape (R, Lmax)
-        Reversal levels of each row, starting and ending on the global maximum.
+        Reversal levels of each row, starting and ending on the global maximum [T].
     lengths : ndarray of int
         Number of valid entries per row.
     expo : float
@@ -205,227 +353,398 @@ def _rainflow(levp, lengths, expo):
     Returns
     -------
     piece_row, piece_leg, piece_end, piece_w : ndarrays
-        One entry per piece of a leg's level range, in leg order: the row, the leg
-        index q (from reversal q to q+1), the level at which the piece ends [T] and
-        the weight ``(Delta B)**(beta-alpha)`` of the loop that owns it.
+        One entry per piece of a leg's level range, ordered by row, leg and
+        level: the row, the leg index q (from reversal q to q+1), the level at
+        which the piece ends [T] and the weight ``(Delta B)**(beta-alpha)`` of the
+        loop that owns it.
+
+    Notes
+    -----
+    A loop over reversal positions, vectorised across rows: the rows are sorted
+    by length so that the rows still running form a leading slice, and each
+    row's stack lives in one flat array.
     """
     n_rows, lmax = levp.shape
-    stk = np.zeros((n_rows, lmax + 1), dtype=np.int64)
-    sp = np.zeros(n_rows, dtype=np.int64)
-    owner = np.full((n_rows, lmax), -1, dtype=np.int64)  # loop id of each reversal's outgoing half
+    order = np.argsort(-lengths, kind="stable")
+    lev = levp[order]
+    ln = lengths[order]
+    n_act = np.searchsorted(-ln, -np.arange(lmax), side="left")  # rows with length > j
+    width = lmax + 1
+    base = np.arange(n_rows) * width
+    sv = np.zeros(n_rows * width)  # stacked levels
+    si = np.zeros(n_rows * width, dtype=np.intp)  # stacked reversal index, as row * lmax + j
+    sp = np.zeros(n_rows, dtype=np.intp)
+    own_ref = np.full(n_rows * lmax, -1, dtype=np.intp)  # loop id of each reversal's outgoing half
     loop_w: list[np.ndarray] = []
     n_loops = 0
-    rows_l, legs_l, ends_l, own_l = [], [], [], []
-    all_rows = np.arange(n_rows)
+    rows_l, legs_l, ends_l, refs_l = [], [], [], []
+    row_lmax = np.arange(n_rows) * lmax
     for j in range(lmax):
-        act = all_rows[lengths > j]
-        stk[act, sp[act]] = j
-        sp[act] += 1
-        while True:
-            c_rows = act[sp[act] >= 4]
-            if c_rows.size == 0:
-                break
-            t = sp[c_rows]
-            ia, ib, ic, idd = (stk[c_rows, t - 4], stk[c_rows, t - 3], stk[c_rows, t - 2], stk[c_rows, t - 1])
-            la, lb, lc, ld = (levp[c_rows, ia], levp[c_rows, ib], levp[c_rows, ic], levp[c_rows, idd])
+        na = int(n_act[j])
+        if na == 0:
+            break
+        f = base[:na] + sp[:na]
+        sv[f] = lev[:na, j]
+        si[f] = row_lmax[:na] + j
+        sp[:na] += 1
+        cand = np.flatnonzero(sp[:na] >= 4)
+        while cand.size:
+            f = base[cand] + sp[cand]
+            la, lb, lc, ld = sv[f - 4], sv[f - 3], sv[f - 2], sv[f - 1]
             x = np.abs(lc - lb)
             ok = (x <= np.abs(lb - la)) & (x <= np.abs(ld - lc))
-            if not ok.any():
-                break
-            c_rows, t, ib, ic, idd, lb, x = c_rows[ok], t[ok], ib[ok], ic[ok], idd[ok], lb[ok], x[ok]
-            ids = n_loops + np.arange(c_rows.size)
-            n_loops += c_rows.size
-            loop_w.append(x**expo)
-            owner[c_rows, ib] = ids
-            owner[c_rows, ic] = ids
-            rows_l.append(c_rows)
-            legs_l.append(np.full(c_rows.size, j - 1))
+            if not ok.all():
+                cand, f, lb, ld, x = cand[ok], f[ok], lb[ok], ld[ok], x[ok]
+                if cand.size == 0:
+                    break
+            ids = n_loops + np.arange(cand.size)
+            n_loops += cand.size
+            loop_w.append(x)
+            ib = si[f - 3]
+            own_ref[ib] = ids
+            own_ref[si[f - 2]] = ids
+            rows_l.append(cand)
+            legs_l.append(np.full(cand.size, j - 1))
             ends_l.append(lb)
-            own_l.append(ic)
-            stk[c_rows, t - 3] = idd
-            sp[c_rows] -= 2
+            refs_l.append(ib)
+            sv[f - 3] = ld
+            si[f - 3] = si[f - 1]
+            sp[cand] -= 2
+            cand = cand[sp[cand] >= 4]
         if j >= 1:
-            tail = act
-            rows_l.append(tail)
-            legs_l.append(np.full(tail.size, j - 1))
-            ends_l.append(levp[tail, j])
-            own_l.append(stk[tail, sp[tail] - 2])
+            rows_l.append(np.arange(na))
+            legs_l.append(np.full(na, j - 1))
+            ends_l.append(lev[:na, j])
+            refs_l.append(si[base[:na] + sp[:na] - 2])
     # residue: [max, min, max] on every row -> the major loop
     if np.any(sp != 3):  # pragma: no cover - guaranteed by starting on the global maximum
         raise RuntimeError("rainflow residue of unexpected length")
-    i_min = stk[:, 1]
-    pp = levp[:, 0] - levp[all_rows, i_min]
-    ids = n_loops + all_rows
-    loop_w.append(pp**expo)
-    owner[:, 0] = ids
-    owner[all_rows, i_min] = ids
-    weights = np.concatenate(loop_w)
+    i_max, i_min = si[base], si[base + 1]
+    loop_w.append(sv[base] - sv[base + 1])
+    ids = n_loops + np.arange(n_rows)
+    own_ref[i_max] = ids
+    own_ref[i_min] = ids
+    weights = np.concatenate(loop_w) ** expo
     p_row = np.concatenate(rows_l)
     p_leg = np.concatenate(legs_l)
     p_end = np.concatenate(ends_l)
-    p_own = owner[p_row, np.concatenate(own_l)]
+    p_own = own_ref[np.concatenate(refs_l)]
     if np.any(p_own < 0):  # pragma: no cover - every stacked reversal gets an outgoing half
         raise RuntimeError("unowned flux levels in the loop decomposition")
-    order = np.argsort(p_row * (lmax + 1) + p_leg, kind="stable")
-    return p_row[order], p_leg[order], p_end[order], weights[p_own[order]]
+    p_row = order[p_row]
+    srt = np.argsort(p_row * width + p_leg, kind="stable")
+    return p_row[srt], p_leg[srt], p_end[srt], weights[p_own[srt]]
 
 
-def _minor_loop_sums(b, ratio, h, expo):
-    """Sum over segments of ratio_k * (owned flux of segment k weighted by its loop) per row.
+# ---------------------------------------------------------------------------
+# the minor-loop rows
+# ---------------------------------------------------------------------------
+def _first_reaching(value_at, lo, hi, target):
+    """Smallest j in [lo, hi] with ``value_at(k, j) >= target[k]``, for values nondecreasing in j.
+
+    A binary search vectorised over the queries k; ``value_at(hi) >= target`` is assumed.
+    """
+    lo = lo.copy()
+    hi = hi.copy()
+    act = np.flatnonzero(lo < hi)
+    while act.size:
+        mid = (lo[act] + hi[act]) >> 1
+        reach = value_at(act, mid) >= target[act]
+        hi[act[reach]] = mid[reach]
+        nr = ~reach
+        lo[act[nr]] = mid[nr] + 1
+        act = act[lo[act] < hi[act]]
+    return lo
+
+
+def _wiggly_legs(bflat, cflat, n, lrow_base, lbuf_base, p0, length, l0, dirs, rng):
+    """First-passage shares of the segments of legs that hold sub-threshold wiggles.
+
+    Writes ``c_i = (|dB_i|**alpha / |dB_i|) * gain_i`` into ``cflat`` for every
+    segment of these legs, where the gain is the flux beyond the leg's running
+    extreme (clipped at the leg's end level), and returns the running extreme of
+    each leg (normalised level ``u`` from 0 at the leg start) as a list of
+    blocks, with the block and row of each leg, for the boundary search.
+    """
+    classes = np.ceil(np.log2(length + 1)).astype(int)
+    blocks = []
+    where = np.empty((length.size, 2), dtype=np.intp)
+    for ci, wc in enumerate(np.unique(classes)):
+        sel = np.flatnonzero(classes == wc)
+        width = 1 << int(wc)
+        ln = length[sel]
+        ar = np.arange(width)
+        valid = ar[None, :] <= ln[:, None]
+        off = np.where(valid, p0[sel, None] + ar[None, :], p0[sel, None])
+        off %= n
+        bv = bflat[lrow_base[sel, None] + off]
+        u = (bv - l0[sel, None]) * dirs[sel, None]
+        run = np.maximum.accumulate(u, axis=1)
+        seg_ok = valid[:, 1:]
+        gain = np.minimum(u[:, 1:], rng[sel, None]) - run[:, :-1]
+        np.maximum(gain, 0.0, out=gain)
+        step = np.abs(bv[:, 1:] - bv[:, :-1])
+        ci_idx = lbuf_base[sel, None] + off[:, :-1]
+        qv = cflat[ci_idx[seg_ok]]
+        st = step[seg_ok]
+        share = np.divide(qv * gain[seg_ok], st, out=np.zeros_like(qv), where=st > 0)
+        cflat[ci_idx[seg_ok]] = share
+        blocks.append(run)
+        where[sel, 0] = ci
+        where[sel, 1] = np.arange(sel.size)
+    return blocks, where
+
+
+def _minor_sums(bflat, cbuf, n, gid, t_row, t_pos, t_lev, h, expo):
+    """Loop-weighted sum of c over the segments of each minor-loop row.
 
     Parameters
     ----------
-    b : ndarray, shape (R, n)
-        Rows with more than two turning points [T].
-    ratio : ndarray, shape (R, n)
-        ``|dB_k|**alpha / |dB_k|`` per original segment (0 where dB_k = 0).
-    h : ndarray, shape (R,)
-        Reversal threshold per row [T].
+    bflat : ndarray
+        All samples of the batch, row-major, flat [T].
+    cbuf : ndarray, shape (m, n)
+        ``|dB_i|**alpha`` of each buffered row (overwritten on wiggly legs).
+    n : int
+        Samples per row.
+    gid : ndarray of int, shape (m,)
+        Row of the batch of each buffered row.
+    t_row, t_pos, t_lev : ndarray
+        Turning points: buffered row, column and level [T], sorted by row and column.
+    h : ndarray, shape (m,)
+        Reversal threshold per row [T] (0 where no swing can be below it).
     expo : float
         beta - alpha.
     """
-    n_rows, n = b.shape
-    rows = np.arange(n_rows)
-    start = np.argmax(b, axis=1)
-    cols = np.arange(n)[None, :] + start[:, None]
-    cols[cols >= n] -= n
-    closed = np.empty((n_rows, n + 1))
-    closed[:, :n] = np.take_along_axis(b, cols, axis=1)
-    closed[:, n] = closed[:, 0]
-    ratio = np.take_along_axis(ratio, cols, axis=1)
-    # local extrema of the rotated period (flat stretches skipped)
-    d = closed[:, 1:] - closed[:, :-1]
-    s = np.sign(d)
-    nzm = s != 0
-    idx = np.where(nzm, np.arange(n), -1)
-    np.maximum.accumulate(idx, axis=1, out=idx)
-    prev_idx = idx[:, :-1]
-    prev_s = np.take_along_axis(s, np.maximum(prev_idx, 0), axis=1)
-    mask = np.zeros((n_rows, n + 1), dtype=bool)
-    mask[:, 0] = True
-    mask[:, n] = True
-    mask[:, 1:n] = nzm[:, 1:] & (prev_idx >= 0) & (prev_s != s[:, 1:])
-    r0, p0 = np.nonzero(mask)
-    orig_keys = r0 * (n + 2) + p0
-    r_ids, pos, lev = _prune(r0, p0, closed[r0, p0], h, n_rows)
-    # per-row padded reversal table
-    lengths = np.bincount(r_ids, minlength=n_rows)
-    first = np.concatenate(([0], np.cumsum(lengths)[:-1]))
-    j_in_row = np.arange(r_ids.size) - first[r_ids]
+    m = gid.size
+    cflat = cbuf.reshape(-1)
+    rbase = gid * n
+    # rotate each row's turning points to start at its first maximum, and close on it
+    cnt = np.bincount(t_row, minlength=m)
+    first = np.zeros(m, dtype=np.intp)
+    np.cumsum(cnt[:-1], out=first[1:])
+    rowmax = np.maximum.reduceat(t_lev, first)
+    local = np.arange(t_row.size) - first[t_row]
+    k0 = np.minimum.reduceat(np.where(t_lev == rowmax[t_row], local, n), first)
+    start = t_pos[first + k0]
+    rot = local - k0[t_row]
+    rot += np.where(rot < 0, cnt[t_row], 0)
+    firstc = first + np.arange(m)
+    total = t_row.size + m
+    r_ids = np.empty(total, dtype=np.intp)
+    pos_u = np.empty(total, dtype=np.intp)
+    lev = np.empty(total)
+    dest = firstc[t_row] + rot
+    r_ids[dest] = t_row
+    pos_u[dest] = t_pos + np.where(t_pos < start[t_row], n, 0)
+    lev[dest] = t_lev
+    close = firstc + cnt
+    r_ids[close] = np.arange(m)
+    pos_u[close] = start + n
+    lev[close] = rowmax
+    idx = np.arange(total)
+    if np.any(h > 0):
+        r_ids, idx, lev = _prune(r_ids, idx, lev, h, m)
+        pos_u = pos_u[idx]
+    # padded table of reversal levels per row, and the rainflow pieces of each leg
+    lengths = np.bincount(r_ids, minlength=m)
+    fe = np.zeros(m, dtype=np.intp)
+    np.cumsum(lengths[:-1], out=fe[1:])
+    j_in_row = np.arange(r_ids.size) - fe[r_ids]
     lmax = int(lengths.max())
-    levp = np.full((n_rows, lmax), np.nan)
+    levp = np.zeros((m, lmax))
     levp[r_ids, j_in_row] = lev
     p_row, p_leg, p_end, p_w = _rainflow(levp, lengths, expo)
 
-    # legs: consecutive reversals of the same row
-    leg_ok = r_ids[1:] == r_ids[:-1]
-    g0 = np.flatnonzero(leg_ok)  # leg g starts at reversal g0[g] (flat index)
-    leg_row = r_ids[g0]
-    leg_p0, leg_p1 = pos[g0], pos[g0 + 1]
-    leg_l0, leg_l1 = lev[g0], lev[g0 + 1]
-    leg_dir = np.sign(leg_l1 - leg_l0)
-    leg_range = np.abs(leg_l1 - leg_l0)
-    leg_len = leg_p1 - leg_p0
-    # pieces are sorted by (row, leg); map each to its leg number g
-    leg_key = leg_row * (lmax + 1) + j_in_row[g0]
-    piece_key = p_row * (lmax + 1) + p_leg
-    piece_leg = np.searchsorted(leg_key, piece_key)
-    n_pieces = np.bincount(piece_leg, minlength=g0.size)
-    piece_first = np.concatenate(([0], np.cumsum(n_pieces)[:-1]))
-    u_end = leg_dir[piece_leg] * (p_end - leg_l0[piece_leg])
-    last_piece = piece_first + n_pieces - 1
-    u_end[last_piece] = leg_range
-    u_beg = np.empty_like(u_end)
-    u_beg[1:] = u_end[:-1]
-    u_beg[piece_first] = 0.0
-    seg = p_w * (u_end - u_beg)
-    rank = np.arange(u_end.size) - piece_first[piece_leg]
-    f_beg = np.zeros_like(u_end)
-    for r in range(1, int(n_pieces.max())):
-        at = np.flatnonzero(rank == r)
-        f_beg[at] = f_beg[at - 1] + seg[at - 1]
+    # legs: entry e to e+1 of the same row is leg number e - row
+    e = np.flatnonzero(r_ids[1:] == r_ids[:-1])
+    leg_row = r_ids[e]
+    leg_p0 = pos_u[e]
+    leg_len = pos_u[e + 1] - leg_p0
+    leg_l0 = lev[e]
+    leg_dir = np.sign(lev[e + 1] - leg_l0)
+    leg_rng = np.abs(lev[e + 1] - leg_l0)
+    wiggly = (idx[e + 1] - idx[e]) > 1
+    n_legs = e.size
 
-    # per segment (rotated order, row-major): its leg and normalised level u
-    seg_leg = np.repeat(np.arange(g0.size), leg_len)
-    dirs = leg_dir[seg_leg]
-    base = leg_l0[seg_leg]
-    u0 = dirs * (closed[:, :n].ravel() - base)
-    u1 = dirs * (closed[:, 1:].ravel() - base)
-    # running extreme within legs that hold sub-threshold wiggles
-    wiggly = (np.searchsorted(orig_keys, leg_row * (n + 2) + leg_p1, "left")
-              - np.searchsorted(orig_keys, leg_row * (n + 2) + leg_p0, "right")) > 0
-    ru = u0
-    if wiggly.any():
-        ru = u0.copy()
-        starts = (leg_row * n + leg_p0)[wiggly]
-        lens = leg_len[wiggly]
-        width_class = np.ceil(np.log2(np.maximum(lens, 1))).astype(int)
-        for wc in np.unique(width_class):
-            sel = width_class == wc
-            st, ln = starts[sel], lens[sel]
-            width = 1 << int(wc)
-            ar = np.arange(width)
-            valid = ar[None, :] < ln[:, None]
-            gi = np.where(valid, st[:, None] + ar[None, :], st[:, None])
-            block = np.maximum.accumulate(u0[gi], axis=1)
-            ru[gi[valid]] = block[valid]
-    hi = np.maximum(np.minimum(u1, leg_range[seg_leg]), ru)
-    lo = ru
+    p_g = fe[p_row] - p_row + p_leg
+    n_pieces = np.bincount(p_g, minlength=n_legs)
+    pf = np.zeros(n_legs, dtype=np.intp)
+    np.cumsum(n_pieces[:-1], out=pf[1:])
+    rank = np.arange(p_g.size) - pf[p_g]
+    bnd = np.flatnonzero(rank > 0)  # piece p starts at the boundary between p-1 and p
+    b_leg = p_g[bnd]
+    b_lev = p_end[bnd - 1]
+    b_row = leg_row[b_leg]
+    istar = np.empty(bnd.size, dtype=np.intp)  # segment (unrolled) that crosses the boundary
+    below = np.empty(bnd.size)  # its flux change up to the boundary, as a share of its c
 
-    def piece_of(u):
-        piece = piece_first[seg_leg].copy()
-        multi = np.flatnonzero(n_pieces[seg_leg] > 1)
-        if multi.size:
-            pm = piece[multi]
-            um = u[multi]
-            lastm = last_piece[seg_leg[multi]]
-            for _ in range(int(n_pieces.max()) - 1):
-                step = (pm < lastm) & (um > u_end[pm])
-                if not step.any():
-                    break
-                pm = pm + step
-            piece[multi] = pm
-        return piece
+    wl = np.flatnonzero(wiggly)
+    if wl.size:
+        blocks, where = _wiggly_legs(bflat, cflat, n, rbase[leg_row[wl]], leg_row[wl] * n,
+                                     leg_p0[wl], leg_len[wl], leg_l0[wl], leg_dir[wl], leg_rng[wl])
+        wrank = np.full(n_legs, -1, dtype=np.intp)
+        wrank[wl] = np.arange(wl.size)
+    bw = wiggly[b_leg]
+    mono = np.flatnonzero(~bw)
+    if mono.size:
+        g = b_leg[mono]
+        dq = leg_dir[g]
+        base = rbase[leg_row[g]]
+        tgt = dq * b_lev[mono]
 
-    ph = piece_of(hi)
-    pl = piece_of(lo)
-    owned = p_w[ph] * (hi - lo)
-    across = np.flatnonzero(ph != pl)
-    if across.size:
-        fh = f_beg[ph[across]] + p_w[ph[across]] * (hi[across] - u_beg[ph[across]])
-        fl = f_beg[pl[across]] + p_w[pl[across]] * (lo[across] - u_beg[pl[across]])
-        owned[across] = fh - fl
-    contrib = ratio.ravel() * owned
-    return contrib.reshape(n_rows, n).sum(axis=1)
+        def value_at(k, j):
+            jj = j % n
+            return dq[k] * bflat[base[k] + jj]
+
+        jfirst = _first_reaching(value_at, leg_p0[g] + 1, leg_p0[g] + leg_len[g], tgt)
+        i_s = jfirst - 1
+        istar[mono] = i_s
+        c0 = i_s % n
+        c1 = (i_s + 1) % n
+        b0 = bflat[base + c0]
+        step = np.abs(bflat[base + c1] - b0)
+        qv = cflat[leg_row[g] * n + c0]
+        below[mono] = qv / step * (dq * (b_lev[mono] - b0))
+    wig = np.flatnonzero(bw)
+    if wig.size:
+        g = b_leg[wig]
+        wr = wrank[g]
+        target = leg_dir[g] * (b_lev[wig] - leg_l0[g])
+        for ci, run in enumerate(blocks):
+            sel = np.flatnonzero(where[wr, 0] == ci)
+            if sel.size == 0:
+                continue
+            rows = run[where[wr[sel], 1]]
+            jfirst = np.count_nonzero(rows < target[sel, None], axis=1)
+            i_s = leg_p0[g[sel]] + jfirst - 1
+            ext = rows[np.arange(sel.size), jfirst - 1]
+            k = wig[sel]
+            istar[k] = i_s
+            c0 = i_s % n
+            base = rbase[leg_row[g[sel]]]
+            step = np.abs(bflat[base + (i_s + 1) % n] - bflat[base + c0])
+            # c of the crossing segment was replaced by its first-passage share: use |dB|**alpha again
+            ext_gain = np.minimum(rows[np.arange(sel.size), jfirst], leg_rng[g[sel]]) - ext
+            share = cflat[leg_row[g[sel]] * n + c0]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                below[k] = np.where(ext_gain > 0, share * (target[sel] - ext) / ext_gain, 0.0)
+    # index ranges: piece p runs from its start to the next piece's start (unrolled columns)
+    p_start = np.empty(p_g.size, dtype=np.intp)
+    firsts = np.flatnonzero(rank == 0)
+    p_start[firsts] = leg_p0[p_g[firsts]]
+    p_start[bnd] = istar
+    col = p_start - np.where(p_start >= n, n, 0)
+    # the range that holds column 0 of each row: the last piece starting at or before it
+    u0 = np.where(start > 0, n, 0)
+    upto = np.bincount(p_row, weights=p_start <= u0[p_row], minlength=m).astype(np.intp)
+    prf = np.zeros(m, dtype=np.intp)
+    np.cumsum(np.bincount(p_row, minlength=m)[:-1], out=prf[1:])
+    keys = np.concatenate((p_row * n + col, np.arange(m) * n))
+    wts = np.concatenate((p_w, p_w[prf + upto - 1]))
+    rws = np.concatenate((p_row, np.arange(m)))
+    srt = np.argsort(keys, kind="stable")
+    keys = keys[srt]
+    sums = np.add.reduceat(cflat, keys)
+    sums[:-1][keys[1:] == keys[:-1]] = 0.0
+    out = np.bincount(rws[srt], weights=wts[srt] * sums, minlength=m)
+    out += np.bincount(b_row, weights=(p_w[bnd - 1] - p_w[bnd]) * below, minlength=m)
+    return out
 
 
-def _chunk(b, period, k_i, alpha, beta, minor_loops, thr):
+# ---------------------------------------------------------------------------
+# the pass over every row
+# ---------------------------------------------------------------------------
+class _MinorBuffer:
+    """Minor-loop rows waiting to be handled together."""
+
+    def __init__(self, bflat, n, capacity, expo):
+        self.bflat = bflat
+        self.n = n
+        self.capacity = capacity
+        self.expo = expo
+        self.c = np.empty((capacity, n))
+        self.clear()
+
+    def clear(self):
+        self.size = 0
+        self.gid, self.t_row, self.t_pos, self.t_lev, self.h = [], [], [], [], []
+
+    def add(self, gid, q, local, t_row, t_pos, t_lev, h):
+        k = self.size
+        np.take(q, local, axis=0, out=self.c[k : k + local.size])
+        self.gid.append(gid)
+        self.t_row.append(t_row + k)
+        self.t_pos.append(t_pos)
+        self.t_lev.append(t_lev)
+        self.h.append(h)
+        self.size += local.size
+
+    def flush(self):
+        m = self.size
+        gid = np.concatenate(self.gid)
+        sums = _minor_sums(self.bflat, self.c[:m], self.n, gid, np.concatenate(self.t_row),
+                           np.concatenate(self.t_pos), np.concatenate(self.t_lev), np.concatenate(self.h),
+                           self.expo)
+        self.clear()
+        return gid, sums
+
+
+def _chunk(b, scale, alpha, expo, minor_loops, thr, row0, buf):
+    """Losses of the rows of one chunk; minor-loop rows go to ``buf`` (their entry is left NaN)."""
     n = b.shape[1]
     d = np.empty_like(b)
     np.subtract(b[:, 1:], b[:, :-1], out=d[:, :-1])
     np.subtract(b[:, 0], b[:, -1], out=d[:, -1])
     a = np.abs(d)
     q = np.power(a, alpha)
-    pp = b.max(axis=1) - b.min(axis=1)
-    dt = period / n
-    scale = k_i * dt ** (1.0 - alpha) / period
-    flat = pp == 0
+    total = q.sum(axis=1)
+    bmax = b.max(axis=1)
+    bmin = b.min(axis=1)
+    pp = bmax - bmin
+    flat_row = pp == 0
     with np.errstate(divide="ignore"):
-        w_major = np.where(flat, 0.0, pp) ** (beta - alpha)
-    w_major[flat] = 0.0
+        w_major = np.where(flat_row, 0.0, pp) ** expo
+    w_major[flat_row] = 0.0
     if not minor_loops:
-        return scale * w_major * q.sum(axis=1)
-    turns = _turning_counts(d)
-    out = np.zeros(b.shape[0])
-    simple = turns == 2
-    if simple.any():
-        out[simple] = scale[simple] * w_major[simple] * q[simple].sum(axis=1)
-    cx = turns > 2
-    if cx.any():
-        bc = b[cx]
-        h = batch_thresholds(bc) if thr is None else thr[cx]
-        ratio = np.divide(q[cx], a[cx], out=np.zeros((bc.shape[0], n)), where=a[cx] > 0)
-        out[cx] = scale[cx] * _minor_loop_sums(bc, ratio, h, beta - alpha)
+        return scale * w_major * total
+    counts, up, change, flat = _turning_info(d, a)
+    out = np.where(counts == 2, scale * w_major * total, 0.0)
+    rows = np.flatnonzero(counts > 2)
+    if rows.size == 0:
+        return out
+    out[rows] = np.nan
+    t_row, t_pos = _minor_turns(d, up, change, flat, rows)
+    t_lev = b[rows[t_row], t_pos]
+    if thr is not None:
+        h = thr[rows]
+    elif n < 5 or n >= _REDUCE_MIN_SAMPLES:
+        h = _reversal_thresholds(b[rows])
+    else:
+        h = np.zeros(rows.size)
+        # smallest swing between consecutive turning points of each row (cyclic)
+        cnt = np.bincount(t_row, minlength=rows.size)
+        first = np.zeros(rows.size, dtype=np.intp)
+        np.cumsum(cnt[:-1], out=first[1:])
+        last = first + cnt - 1
+        sw = np.empty(t_lev.size)
+        np.subtract(t_lev[1:], t_lev[:-1], out=sw[:-1])
+        sw[last] = t_lev[first] - t_lev[last]
+        np.abs(sw, out=sw)
+        s_min = np.minimum.reduceat(sw, first)
+        # the quantisation step is 0 or the smallest non-zero increment (of the non-periodic ones)
+        inner = t_pos <= n - 2
+        a_turn = np.where(inner, a[rows[t_row], np.minimum(t_pos, n - 2)], np.inf)
+        q_bound = np.minimum.reduceat(a_turn, first)
+        easy = (2.5 * q_bound <= s_min) & (1e-12 * pp[rows] <= s_min)
+        ez = np.flatnonzero(easy)
+        proven = np.zeros(rows.size, dtype=bool)
+        if ez.size:
+            b_abs = np.maximum(np.abs(bmax[rows[ez]]), np.abs(bmin[rows[ez]]))
+            proven[ez] = _threshold_below_swings(d, rows[ez], s_min[ez], b_abs)
+        hard = np.flatnonzero(~proven)
+        if hard.size:
+            h[hard] = _reversal_thresholds(b[rows[hard]])
+    buf.add(row0 + rows, q, rows, t_row, t_pos, t_lev, h)
     return out
 
 
@@ -447,7 +766,8 @@ def igse_batch(b, period, k, alpha, beta, minor_loops: bool = True, *, threshold
         one loop of its peak-to-peak flux.
     threshold : float or array_like, optional
         Smallest reversal counted as a loop [T], for all rows or per row; by
-        default derived from each row's own noise (see :func:`batch_thresholds`).
+        default derived from each row's own noise and quantisation, as
+        :func:`workbench.models.igse` does.
 
     Returns
     -------
@@ -460,8 +780,9 @@ def igse_batch(b, period, k, alpha, beta, minor_loops: bool = True, *, threshold
               (\\Delta B_j)^{\\beta-\\alpha} dt
 
     evaluated exactly for flux that is linear between samples, as
-    :func:`workbench.models.igse` does for one waveform. Rows are processed in
-    chunks of about :data:`CHUNK_SAMPLES` samples, so temporaries stay small.
+    :func:`workbench.models.igse` does for one waveform. Rows are read in chunks
+    of about :data:`CHUNK_SAMPLES` samples; rows with minor loops are gathered
+    into groups of about :data:`MINOR_SAMPLES` samples, so memory stays bounded.
 
     References
     ----------
@@ -474,9 +795,16 @@ def igse_batch(b, period, k, alpha, beta, minor_loops: bool = True, *, threshold
     alpha = float(alpha)
     beta = float(beta)
     n_rows, n = arr.shape
+    scale = k_i * (per / n) ** (1.0 - alpha) / per
     out = np.empty(n_rows)
     step = max(1, CHUNK_SAMPLES // n)
+    cap = max(1, MINOR_SAMPLES // n)
+    buf = _MinorBuffer(arr.reshape(-1), n, cap + step, beta - alpha) if minor_loops else None
     for i in range(0, n_rows, step):
         sl = slice(i, min(i + step, n_rows))
-        out[sl] = _chunk(arr[sl], per[sl], k_i, alpha, beta, bool(minor_loops), None if thr is None else thr[sl])
+        out[sl] = _chunk(arr[sl], scale[sl], alpha, beta - alpha, bool(minor_loops),
+                         None if thr is None else thr[sl], i, buf)
+        if buf is not None and (buf.size >= cap or sl.stop == n_rows) and buf.size:
+            gid, sums = buf.flush()
+            out[gid] = scale[gid] * sums
     return out
