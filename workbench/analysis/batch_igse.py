@@ -74,6 +74,45 @@ _MAD_SCALE = 0.6745 * np.sqrt(6.0)
 
 _EPS = np.finfo(float).eps
 
+_SIMD_EXP_LOG = None
+
+
+def _simd_exp_log() -> bool:
+    """True when numpy runs its float64 exp and log on a vector (non-baseline) CPU target.
+
+    Decided once from numpy's own dispatch table (``numpy.lib.introspect``,
+    numpy >= 2.1), never from timing; False when that is not available.
+    """
+    global _SIMD_EXP_LOG
+    if _SIMD_EXP_LOG is None:
+        try:
+            from numpy.lib.introspect import opt_func_info
+
+            ok = True
+            for name in ("exp", "log"):
+                info = opt_func_info(func_name=f"^{name}$", signature="float64").get(name, {})
+                cur = [str(v.get("current", "")) for v in info.values()]
+                ok &= bool(cur) and all(c and not c.startswith("baseline") for c in cur)
+            _SIMD_EXP_LOG = bool(ok)
+        except Exception:  # older numpy: plain power
+            _SIMD_EXP_LOG = False
+    return _SIMD_EXP_LOG
+
+
+def _abs_power(a: np.ndarray, alpha: float, out: np.ndarray) -> np.ndarray:
+    """``a**alpha`` for non-negative a, into ``out``.
+
+    Where numpy has vectorised exp and log kernels, ``exp(alpha * log(a))`` is
+    about 1.5x faster than ``np.power`` and agrees with it to a few 1e-15
+    (relative error about ``|alpha log a| * eps``); ``log(0) = -inf`` gives 0.
+    """
+    if not _simd_exp_log():
+        return np.power(a, alpha, out=out)
+    with np.errstate(divide="ignore"):
+        np.log(a, out=out)
+    np.multiply(out, alpha, out=out)
+    return np.exp(out, out=out)
+
 
 def _check_batch(b, period, threshold):
     arr = np.ascontiguousarray(b, dtype=float)
@@ -81,10 +120,6 @@ def _check_batch(b, period, threshold):
         raise ValueError(f"b must be a 2-D array (n_waveforms, n_samples), got shape {arr.shape}")
     if arr.shape[1] < 2:
         raise ValueError(f"b needs at least 2 samples per row, got shape {arr.shape}")
-    bad = ~np.isfinite(arr)
-    if bad.any():
-        r, c = np.argwhere(bad)[0]
-        raise ValueError(f"b has a non-finite value at row {r}, column {c}: {arr[r, c]!r}")
     n_rows = arr.shape[0]
     per = np.asarray(period, dtype=float)
     if per.ndim == 0:
@@ -198,24 +233,24 @@ def _threshold_below_swings(d, rows, s_min, b_abs):
     the increments, ``(b2 - b1) - (b1 - b0)``, which differ from the noise
     estimate's ``b2 - 2 b1 + b0`` by less than ``8 eps max|b|``; the test uses
     twice that margin, and ``t`` a relative margin of 1e-9 against rounding.
+    Usually the leading part of a row already holds enough small differences;
+    the whole row is read only for the others.
     """
     n = d.shape[1]
     m = n - 2
     need = m // 2 + 1
     t = s_min * (_MAD_SCALE / NOISE_THRESHOLD_SIGMAS) * (1.0 - 1e-9) - 16.0 * _EPS * b_abs
     ok = np.zeros(rows.size, dtype=bool)
-    # first the leading part of each row: usually enough small differences there
-    width = min(m, need + max(8, m // 8))
     todo = np.flatnonzero(t > 0)
-    for w in (width, m):
+    for w in (min(m, need + max(8, m // 8)), m):
         if todo.size == 0:
             break
-        dr = d[rows[todo], : w + 1]
-        dd = np.subtract(dr[:, 1:], dr[:, :-1])
+        src = d[:, : w + 1] if todo.size == d.shape[0] else d[rows[todo], : w + 1]
+        dd = np.subtract(src[:, 1:], src[:, :-1])
         np.abs(dd, out=dd)
-        small = np.count_nonzero(dd <= t[todo, None], axis=1) >= need
-        ok[todo[small]] = True
-        todo = todo[~small]
+        hit = np.count_nonzero(dd <= t[todo, None], axis=1) >= need
+        ok[todo[hit]] = True
+        todo = todo[~hit]
         if w == m:
             break
     return ok
@@ -248,41 +283,65 @@ def _compressed_turns(up_rows: np.ndarray, nz_rows: np.ndarray):
     return counts, where_nz[change]
 
 
-def _turning_info(d: np.ndarray, a: np.ndarray):
-    """Turning-point count of every row and the change mask for rows without flats.
+_popcount = getattr(np, "bitwise_count", None)  # numpy >= 2.0
 
-    Returns (counts, up, change, flat) where ``change[r, i]`` marks sample i as a
-    turning point of row r (valid for rows without flat segments) and ``flat``
-    marks the rows that have flat segments (their counts come from the compressed
-    sign sequence).
+
+def _turning_info(d: np.ndarray, a: np.ndarray, up: np.ndarray, change: np.ndarray):
+    """Turning-point count of every row (flat stretches skipped) and which rows have flats.
+
+    ``up`` and ``change`` are work arrays, shape (R, >= n) with zero padding
+    beyond n. On return ``change[r, i]`` marks a sign change of the increments
+    at sample i, flat increments taken as falling: exact for rows without flat
+    segments. Treating a flat as falling can only add turning points (a pause
+    in a rise counts twice), never remove one, so a row with 2 such changes has
+    exactly 2; the exact count from the non-zero increments is computed only
+    for rows above 2 that have flat segments.
+
+    Returns
+    -------
+    counts : ndarray of int
+        Turning points per row.
+    flat : ndarray of bool
+        Rows with flat segments among those whose plain count exceeds 2
+        (False elsewhere).
     """
     n_rows, n = d.shape
-    up = d > 0
-    change = np.empty((n_rows, n), dtype=bool)
-    np.not_equal(up[:, 1:], up[:, :-1], out=change[:, 1:])
-    np.not_equal(up[:, 0], up[:, -1], out=change[:, 0])
-    counts = np.count_nonzero(change, axis=1)
-    flat = a.min(axis=1) == 0
-    if flat.any():
-        fr = np.flatnonzero(flat)
-        counts[fr] = _compressed_turns(up[fr], d[fr] != 0)[0]
-    return counts, up, change, flat
+    np.greater(d, 0.0, out=up[:, :n])
+    np.not_equal(up[:, 1:n], up[:, : n - 1], out=change[:, 1:n])
+    np.not_equal(up[:, 0], up[:, n - 1], out=change[:, 0])
+    if _popcount is not None and change.shape[1] % 8 == 0:
+        counts = _popcount(change.view(np.uint64)).sum(axis=1, dtype=np.intp)
+    else:
+        counts = np.count_nonzero(change[:, :n], axis=1)
+    flat = np.zeros(n_rows, dtype=bool)
+    many = counts > 2
+    if many.any():
+        flat = many & (a.min(axis=1) == 0)  # contiguous reduction: cheaper than gathering rows
+        if flat.any():
+            fr = np.flatnonzero(flat)
+            counts[fr] = _compressed_turns(up[fr, :n], d[fr] != 0)[0]
+    return counts, flat
 
 
 def _minor_turns(d, up, change, flat, rows):
     """Sorted (row rank, column) of the turning points of the given rows."""
-    n = d.shape[1]
+    n_rows, n = d.shape
+    rank_of = np.full(n_rows, -1, dtype=np.intp)
+    rank_of[rows] = np.arange(rows.size)
+    plain = np.zeros(n_rows, dtype=bool)
+    plain[rows] = ~flat[rows]
     keys = []
-    plain = ~flat[rows]
     if plain.any():
-        k = np.flatnonzero(change[rows[plain]])
-        rank = np.flatnonzero(plain)
-        keys.append(rank[k // n] * n + k % n)
-    if not plain.all():
-        rank = np.flatnonzero(~plain)
-        fr = rows[rank]
-        k = _compressed_turns(up[fr], d[fr] != 0)[1]
-        keys.append(rank[k // n] * n + k % n)
+        # one scan of the whole (contiguous, zero-padded) change mask, then keep our rows
+        width = change.shape[1]
+        k = np.flatnonzero(change)
+        r = k // width
+        keep = plain[r]
+        keys.append(rank_of[r[keep]] * n + (k[keep] - r[keep] * width))
+    fr = rows[flat[rows]]
+    if fr.size:
+        k = _compressed_turns(up[fr, :n], d[fr] != 0)[1]
+        keys.append(rank_of[fr[k // n]] * n + k % n)
     key = np.concatenate(keys) if len(keys) > 1 else keys[0]
     if len(keys) > 1:
         key.sort()
@@ -360,99 +419,176 @@ def _rainflow(levp, lengths, expo):
 
     Notes
     -----
-    A loop over reversal positions, vectorised across rows: the rows are sorted
-    by length so that the rows still running form a leading slice, and each
-    row's stack lives in one flat array.
+    The four-point rule of ASTM E1049-85 sec. 5.4.4 as a loop over reversal
+    positions, vectorised across rows. Rows are sorted by length so that the
+    rows still running form a leading slice; the top four stack entries of every
+    row are kept in dense arrays (renamed, not copied, when an entry is pushed;
+    rows that have finished never run again), the rest of each stack in one flat
+    array.
     """
     n_rows, lmax = levp.shape
-    order = np.argsort(-lengths, kind="stable")
-    lev = levp[order]
+    key = (lmax - lengths).astype(np.int16 if lmax < (1 << 15) else np.intp)
+    order = np.argsort(key, kind="stable")  # longest first (radix sort on int16)
     ln = lengths[order]
+    lev_t = np.ascontiguousarray(levp[order].T)  # one contiguous row per position j
     n_act = np.searchsorted(-ln, -np.arange(lmax), side="left")  # rows with length > j
     width = lmax + 1
     base = np.arange(n_rows) * width
+    all_rows = np.arange(n_rows)
     sv = np.zeros(n_rows * width)  # stacked levels
-    si = np.zeros(n_rows * width, dtype=np.intp)  # stacked reversal index, as row * lmax + j
+    si = np.zeros(n_rows * width, dtype=np.intp)  # stacked reversal positions j
     sp = np.zeros(n_rows, dtype=np.intp)
-    own_ref = np.full(n_rows * lmax, -1, dtype=np.intp)  # loop id of each reversal's outgoing half
-    loop_w: list[np.ndarray] = []
-    n_loops = 0
-    rows_l, legs_l, ends_l, refs_l = [], [], [], []
-    row_lmax = np.arange(n_rows) * lmax
+    t1, t2, t3, t4 = (np.zeros(n_rows) for _ in range(4))  # levels at sp-1 .. sp-4
+    i1, i2, i3, i4 = (np.zeros(n_rows, dtype=np.intp) for _ in range(4))
+    c_row, c_leg, c_it, c_end, c_x, c_b, c_c = [], [], [], [], [], [], []
+    t_n, t_end, t_ref = [], [], []
     for j in range(lmax):
         na = int(n_act[j])
         if na == 0:
             break
+        t1, t2, t3, t4 = t4, t1, t2, t3
+        i1, i2, i3, i4 = i4, i1, i2, i3
+        t1[:na] = lev_t[j, :na]
+        i1[:na] = j
         f = base[:na] + sp[:na]
-        sv[f] = lev[:na, j]
-        si[f] = row_lmax[:na] + j
+        sv[f] = t1[:na]
+        si[f] = j
         sp[:na] += 1
-        cand = np.flatnonzero(sp[:na] >= 4)
-        while cand.size:
-            f = base[cand] + sp[cand]
-            la, lb, lc, ld = sv[f - 4], sv[f - 3], sv[f - 2], sv[f - 1]
-            x = np.abs(lc - lb)
-            ok = (x <= np.abs(lb - la)) & (x <= np.abs(ld - lc))
-            if not ok.all():
-                cand, f, lb, ld, x = cand[ok], f[ok], lb[ok], ld[ok], x[ok]
+        if j >= 3:
+            x = np.abs(t2[:na] - t3[:na])
+            ok = x <= np.abs(t3[:na] - t4[:na])
+            ok &= x <= np.abs(t1[:na] - t2[:na])
+            ok &= sp[:na] >= 4
+            cand = np.flatnonzero(ok)
+            x = x[cand]
+            it = 0
+            while cand.size:
+                c_row.append(cand)
+                c_leg.append(j - 1)
+                c_it.append(it)
+                c_end.append(t3[cand])
+                c_x.append(x)
+                c_b.append(i3[cand])
+                c_c.append(i2[cand])
+                spc = sp[cand] - 2
+                sp[cand] = spc
+                t2[cand] = t4[cand]
+                i2[cand] = i4[cand]
+                g = base[cand] + spc
+                sv[g - 1] = t1[cand]
+                si[g - 1] = j
+                t3[cand] = sv[g - 3]
+                i3[cand] = si[g - 3]
+                t4[cand] = sv[g - 4]
+                i4[cand] = si[g - 4]
+                keep = spc >= 4
+                cand, g = cand[keep], g[keep]
                 if cand.size == 0:
                     break
-            ids = n_loops + np.arange(cand.size)
-            n_loops += cand.size
-            loop_w.append(x)
-            ib = si[f - 3]
-            own_ref[ib] = ids
-            own_ref[si[f - 2]] = ids
-            rows_l.append(cand)
-            legs_l.append(np.full(cand.size, j - 1))
-            ends_l.append(lb)
-            refs_l.append(ib)
-            sv[f - 3] = ld
-            si[f - 3] = si[f - 1]
-            sp[cand] -= 2
-            cand = cand[sp[cand] >= 4]
+                x = np.abs(t2[cand] - t3[cand])
+                ok = (x <= np.abs(t3[cand] - t4[cand])) & (x <= np.abs(t1[cand] - t2[cand]))
+                cand, x = cand[ok], x[ok]
+                it += 1
         if j >= 1:
-            rows_l.append(np.arange(na))
-            legs_l.append(np.full(na, j - 1))
-            ends_l.append(lev[:na, j])
-            refs_l.append(si[base[:na] + sp[:na] - 2])
+            t_n.append(na)
+            t_end.append(t1[:na].copy())
+            t_ref.append(i2[:na].copy())
     # residue: [max, min, max] on every row -> the major loop
     if np.any(sp != 3):  # pragma: no cover - guaranteed by starting on the global maximum
         raise RuntimeError("rainflow residue of unexpected length")
-    i_max, i_min = si[base], si[base + 1]
-    loop_w.append(sv[base] - sv[base + 1])
-    ids = n_loops + np.arange(n_rows)
-    own_ref[i_max] = ids
-    own_ref[i_min] = ids
-    weights = np.concatenate(loop_w) ** expo
-    p_row = np.concatenate(rows_l)
-    p_leg = np.concatenate(legs_l)
-    p_end = np.concatenate(ends_l)
-    p_own = own_ref[np.concatenate(refs_l)]
-    if np.any(p_own < 0):  # pragma: no cover - every stacked reversal gets an outgoing half
+    n_cl = sum(c.size for c in c_row)
+    row_lmax = all_rows * lmax
+    own = np.full(n_rows * lmax, -1, dtype=np.intp)  # loop of each reversal's outgoing half
+    loop_x = np.empty(n_cl + n_rows)
+    if n_cl:
+        cr = np.concatenate(c_row)
+        sizes = [c.size for c in c_row]
+        cl = np.repeat(np.array(c_leg, dtype=np.intp), sizes)
+        ci = np.repeat(np.array(c_it, dtype=np.intp), sizes)
+        ce = np.concatenate(c_end)
+        loop_x[:n_cl] = np.concatenate(c_x)
+        ids = np.arange(n_cl)
+        own[row_lmax[cr] + np.concatenate(c_b)] = ids
+        own[row_lmax[cr] + np.concatenate(c_c)] = ids
+    else:
+        cr = cl = ci = np.zeros(0, dtype=np.intp)
+        ce = np.zeros(0)
+    loop_x[n_cl:] = sv[base] - sv[base + 1]
+    own[row_lmax + si[base]] = n_cl + all_rows
+    own[row_lmax + si[base + 1]] = n_cl + all_rows
+    tn = np.array(t_n, dtype=np.intp)
+    tr = np.concatenate([all_rows[:k] for k in t_n])
+    tl = np.repeat(np.arange(tn.size), tn)
+    te = np.concatenate(t_end)
+    tw = own[row_lmax[tr] + np.concatenate(t_ref)]
+    if np.any(tw < 0):  # pragma: no cover - every stacked reversal gets an outgoing half
         raise RuntimeError("unowned flux levels in the loop decomposition")
-    p_row = order[p_row]
-    srt = np.argsort(p_row * width + p_leg, kind="stable")
-    return p_row[srt], p_leg[srt], p_end[srt], weights[p_own[srt]]
+    # pieces of leg (row, q): its closures in the order they happened, then its tail;
+    # grouped by the caller's row order, so no sort is needed
+    cr = order[cr]
+    tr = order[tr]
+    grp_c = cr * lmax + cl
+    grp_t = tr * lmax + tl
+    per_grp = np.bincount(grp_c, minlength=n_rows * lmax) + np.bincount(grp_t, minlength=n_rows * lmax)
+    offs = np.zeros(n_rows * lmax, dtype=np.intp)
+    np.cumsum(per_grp[:-1], out=offs[1:])
+    n_p = n_cl + tr.size
+    weights = loop_x ** expo
+    p_row = np.empty(n_p, dtype=np.intp)
+    p_leg = np.empty(n_p, dtype=np.intp)
+    p_end = np.empty(n_p)
+    p_w = np.empty(n_p)
+    dc = offs[grp_c] + ci
+    dt = offs[grp_t] + per_grp[grp_t] - 1
+    p_row[dc], p_leg[dc], p_end[dc], p_w[dc] = cr, cl, ce, weights[:n_cl]
+    p_row[dt], p_leg[dt], p_end[dt], p_w[dt] = tr, tl, te, weights[tw]
+    return p_row, p_leg, p_end, p_w
 
 
 # ---------------------------------------------------------------------------
 # the minor-loop rows
 # ---------------------------------------------------------------------------
-def _first_reaching(value_at, lo, hi, target):
+def _first_reaching(value_at, lo, hi, v_before, v_hi, target):
     """Smallest j in [lo, hi] with ``value_at(k, j) >= target[k]``, for values nondecreasing in j.
 
-    A binary search vectorised over the queries k; ``value_at(hi) >= target`` is assumed.
+    Vectorised over the queries k. ``v_before`` is the value at ``lo - 1`` (below
+    the target) and ``v_hi`` the value at ``hi`` (at or above it). The first
+    rounds guess by linear interpolation and probe the guess and the sample
+    before it (flux between two reversals is often close to a straight line, so
+    one round usually settles it); bisection finishes the rest.
     """
     lo = lo.copy()
     hi = hi.copy()
+    vl = v_before.astype(float, copy=True)
+    vh = v_hi.astype(float, copy=True)
     act = np.flatnonzero(lo < hi)
+    rounds = 0
     while act.size:
-        mid = (lo[act] + hi[act]) >> 1
-        reach = value_at(act, mid) >= target[act]
-        hi[act[reach]] = mid[reach]
-        nr = ~reach
-        lo[act[nr]] = mid[nr] + 1
+        a_lo, a_hi, tg = lo[act], hi[act], target[act]
+        if rounds < 2:
+            frac = (tg - vl[act]) / (vh[act] - vl[act])
+            g = a_lo - 1 + np.ceil(frac * (a_hi - a_lo + 1)).astype(np.intp)
+            np.clip(g, a_lo, a_hi, out=g)
+            v = value_at(act, g)
+            vm = value_at(act, g - 1)
+            reach = v >= tg
+            reach_m = vm >= tg
+            exact = reach & ~reach_m
+            lo[act[exact]] = g[exact]
+            hi[act[exact]] = g[exact]
+            both = reach & reach_m
+            hi[act[both]] = g[both] - 1
+            vh[act[both]] = vm[both]
+            none = ~reach
+            lo[act[none]] = g[none] + 1
+            vl[act[none]] = v[none]
+        else:
+            mid = (a_lo + a_hi) >> 1
+            reach = value_at(act, mid) >= tg
+            hi[act[reach]] = mid[reach]
+            nr = ~reach
+            lo[act[nr]] = mid[nr] + 1
+        rounds += 1
         act = act[lo[act] < hi[act]]
     return lo
 
@@ -561,6 +697,7 @@ def _minor_sums(bflat, cbuf, n, gid, t_row, t_pos, t_lev, h, expo):
     leg_p0 = pos_u[e]
     leg_len = pos_u[e + 1] - leg_p0
     leg_l0 = lev[e]
+    lev_end = lev[e + 1]
     leg_dir = np.sign(lev[e + 1] - leg_l0)
     leg_rng = np.abs(lev[e + 1] - leg_l0)
     wiggly = (idx[e + 1] - idx[e]) > 1
@@ -596,7 +733,8 @@ def _minor_sums(bflat, cbuf, n, gid, t_row, t_pos, t_lev, h, expo):
             jj = j % n
             return dq[k] * bflat[base[k] + jj]
 
-        jfirst = _first_reaching(value_at, leg_p0[g] + 1, leg_p0[g] + leg_len[g], tgt)
+        jfirst = _first_reaching(value_at, leg_p0[g] + 1, leg_p0[g] + leg_len[g],
+                                 dq * leg_l0[g], dq * lev_end[g], tgt)
         i_s = jfirst - 1
         istar[mono] = i_s
         c0 = i_s % n
@@ -628,25 +766,34 @@ def _minor_sums(bflat, cbuf, n, gid, t_row, t_pos, t_lev, h, expo):
             share = cflat[leg_row[g[sel]] * n + c0]
             with np.errstate(invalid="ignore", divide="ignore"):
                 below[k] = np.where(ext_gain > 0, share * (target[sel] - ext) / ext_gain, 0.0)
-    # index ranges: piece p runs from its start to the next piece's start (unrolled columns)
+    # index ranges: piece p runs from its start to the next piece's start (unrolled columns).
+    # Within a row the starts rise from `start` to below start + n: in column order the
+    # pieces starting at or beyond n come first, then the others; an extra range opens
+    # each row at column 0 and belongs to the last piece starting at or before it.
     p_start = np.empty(p_g.size, dtype=np.intp)
     firsts = np.flatnonzero(rank == 0)
     p_start[firsts] = leg_p0[p_g[firsts]]
     p_start[bnd] = istar
-    col = p_start - np.where(p_start >= n, n, 0)
-    # the range that holds column 0 of each row: the last piece starting at or before it
-    u0 = np.where(start > 0, n, 0)
-    upto = np.bincount(p_row, weights=p_start <= u0[p_row], minlength=m).astype(np.intp)
+    wrapped = p_start >= n
+    per_row = np.bincount(p_row, minlength=m)
     prf = np.zeros(m, dtype=np.intp)
-    np.cumsum(np.bincount(p_row, minlength=m)[:-1], out=prf[1:])
-    keys = np.concatenate((p_row * n + col, np.arange(m) * n))
-    wts = np.concatenate((p_w, p_w[prf + upto - 1]))
-    rws = np.concatenate((p_row, np.arange(m)))
-    srt = np.argsort(keys, kind="stable")
-    keys = keys[srt]
+    np.cumsum(per_row[:-1], out=prf[1:])
+    n_wrap = np.bincount(p_row, weights=wrapped, minlength=m).astype(np.intp)
+    t = np.arange(p_g.size) - prf[p_row]
+    unwrapped_n = per_row - n_wrap
+    dest = prf[p_row] + p_row + 1 + np.where(wrapped, t - unwrapped_n[p_row], t + n_wrap[p_row])
+    size = p_g.size + m
+    keys = np.empty(size, dtype=np.intp)
+    wts = np.empty(size)
+    keys[dest] = p_row * n + p_start - np.where(wrapped, n, 0)
+    wts[dest] = p_w
+    head = prf + np.arange(m)
+    keys[head] = np.arange(m) * n
+    wts[head] = p_w[prf + unwrapped_n - 1]
     sums = np.add.reduceat(cflat, keys)
     sums[:-1][keys[1:] == keys[:-1]] = 0.0
-    out = np.bincount(rws[srt], weights=wts[srt] * sums, minlength=m)
+    sums *= wts
+    out = np.add.reduceat(sums, head)
     out += np.bincount(b_row, weights=(p_w[bnd - 1] - p_w[bnd]) * below, minlength=m)
     return out
 
@@ -689,17 +836,36 @@ class _MinorBuffer:
         return gid, sums
 
 
-def _chunk(b, scale, alpha, expo, minor_loops, thr, row0, buf):
+class _Work:
+    """Work arrays for the chunks of one call, allocated once."""
+
+    def __init__(self, rows: int, n: int):
+        self.d = np.empty((rows, n))
+        self.a = np.empty((rows, n))
+        self.q = np.empty((rows, n))
+        width = -(-n // 8) * 8  # whole 8-byte words per row for the popcount
+        self.up = np.zeros((rows, width), dtype=bool)
+        self.change = np.zeros((rows, width), dtype=bool)
+
+
+def _first_bad(b, row0):
+    r, c = np.argwhere(~np.isfinite(b))[0]
+    return ValueError(f"b has a non-finite value at row {row0 + r}, column {c}: {b[r, c]!r}")
+
+
+def _chunk(b, scale, alpha, expo, minor_loops, thr, row0, buf, work):
     """Losses of the rows of one chunk; minor-loop rows go to ``buf`` (their entry is left NaN)."""
-    n = b.shape[1]
-    d = np.empty_like(b)
-    np.subtract(b[:, 1:], b[:, :-1], out=d[:, :-1])
-    np.subtract(b[:, 0], b[:, -1], out=d[:, -1])
-    a = np.abs(d)
-    q = np.power(a, alpha)
-    total = q.sum(axis=1)
+    n_rows, n = b.shape
     bmax = b.max(axis=1)
     bmin = b.min(axis=1)
+    if not (np.isfinite(bmax).all() and np.isfinite(bmin).all()):  # NaN propagates through max
+        raise _first_bad(b, row0)
+    d = work.d[:n_rows]
+    np.subtract(b[:, 1:], b[:, :-1], out=d[:, :-1])
+    np.subtract(b[:, 0], b[:, -1], out=d[:, -1])
+    a = np.abs(d, out=work.a[:n_rows])
+    q = _abs_power(a, alpha, work.q[:n_rows])
+    total = q.sum(axis=1)
     pp = bmax - bmin
     flat_row = pp == 0
     with np.errstate(divide="ignore"):
@@ -707,7 +873,9 @@ def _chunk(b, scale, alpha, expo, minor_loops, thr, row0, buf):
     w_major[flat_row] = 0.0
     if not minor_loops:
         return scale * w_major * total
-    counts, up, change, flat = _turning_info(d, a)
+    up = work.up[:n_rows]
+    change = work.change[:n_rows]
+    counts, flat = _turning_info(d, a, up, change)
     out = np.where(counts == 2, scale * w_major * total, 0.0)
     rows = np.flatnonzero(counts > 2)
     if rows.size == 0:
@@ -800,10 +968,11 @@ def igse_batch(b, period, k, alpha, beta, minor_loops: bool = True, *, threshold
     step = max(1, CHUNK_SAMPLES // n)
     cap = max(1, MINOR_SAMPLES // n)
     buf = _MinorBuffer(arr.reshape(-1), n, cap + step, beta - alpha) if minor_loops else None
+    work = _Work(min(step, n_rows), n)
     for i in range(0, n_rows, step):
         sl = slice(i, min(i + step, n_rows))
         out[sl] = _chunk(arr[sl], scale[sl], alpha, beta - alpha, bool(minor_loops),
-                         None if thr is None else thr[sl], i, buf)
+                         None if thr is None else thr[sl], i, buf, work)
         if buf is not None and (buf.size >= cap or sl.stop == n_rows) and buf.size:
             gid, sums = buf.flush()
             out[gid] = scale[gid] * sums
