@@ -802,38 +802,94 @@ def _minor_sums(bflat, cbuf, n, gid, t_row, t_pos, t_lev, h, expo):
 # the pass over every row
 # ---------------------------------------------------------------------------
 class _MinorBuffer:
-    """Minor-loop rows waiting to be handled together."""
+    """Minor-loop rows waiting to be handled together.
 
-    def __init__(self, bflat, n, capacity, expo):
+    Each chunk copies in the increments and ``|dB|**alpha`` of its minor-loop
+    rows; everything else (turning points, thresholds, pairing, sums) runs once
+    per group of about :data:`MINOR_SAMPLES` samples, so its fixed cost per
+    numpy call is spread over many rows.
+    """
+
+    def __init__(self, bflat, n, capacity, expo, thr):
         self.bflat = bflat
         self.n = n
-        self.capacity = capacity
         self.expo = expo
+        self.thr = thr
         self.c = np.empty((capacity, n))
+        self.d = np.empty((capacity, n))
         self.clear()
 
     def clear(self):
         self.size = 0
-        self.gid, self.t_row, self.t_pos, self.t_lev, self.h = [], [], [], [], []
+        self.gid, self.flat, self.pp, self.b_abs = [], [], [], []
 
-    def add(self, gid, q, local, t_row, t_pos, t_lev, h):
+    def add(self, gid, q, d, local, flat, pp, b_abs):
         k = self.size
         np.take(q, local, axis=0, out=self.c[k : k + local.size])
+        np.take(d, local, axis=0, out=self.d[k : k + local.size])
         self.gid.append(gid)
-        self.t_row.append(t_row + k)
-        self.t_pos.append(t_pos)
-        self.t_lev.append(t_lev)
-        self.h.append(h)
+        self.flat.append(flat)
+        self.pp.append(pp)
+        self.b_abs.append(b_abs)
         self.size += local.size
 
     def flush(self):
-        m = self.size
+        m, n = self.size, self.n
         gid = np.concatenate(self.gid)
-        sums = _minor_sums(self.bflat, self.c[:m], self.n, gid, np.concatenate(self.t_row),
-                           np.concatenate(self.t_pos), np.concatenate(self.t_lev), np.concatenate(self.h),
-                           self.expo)
+        flat = np.concatenate(self.flat)
+        d = self.d[:m]
+        up = d > 0
+        change = np.empty((m, n), dtype=bool)
+        np.not_equal(up[:, 1:], up[:, :-1], out=change[:, 1:])
+        np.not_equal(up[:, 0], up[:, -1], out=change[:, 0])
+        t_row, t_pos = _minor_turns(d, up, change, flat, np.arange(m))
+        t_lev = self.bflat[gid[t_row] * n + t_pos]
+        if self.thr is not None:
+            h = self.thr[gid]
+        else:
+            h = _minor_thresholds(self.bflat, d, gid, t_row, t_pos, t_lev,
+                                  np.concatenate(self.pp), np.concatenate(self.b_abs))
+        sums = _minor_sums(self.bflat, self.c[:m], n, gid, t_row, t_pos, t_lev, h, self.expo)
         self.clear()
         return gid, sums
+
+
+def _minor_thresholds(bflat, d, gid, t_row, t_pos, t_lev, pp, b_abs):
+    """Reversal threshold of each buffered row [T], or 0 where it is proven below every swing.
+
+    A threshold at or below the smallest swing between turning points prunes
+    nothing, so 0 gives the same reversals. The bound uses the quantisation
+    step (0 or the smallest non-zero increment, so at most the increment
+    leaving a turning point), the span term, and the count test of
+    :func:`_threshold_below_swings` for the noise term; rows that fail get the
+    full rule.
+    """
+    m, n = d.shape
+    if n < 5 or n >= _REDUCE_MIN_SAMPLES:
+        return _reversal_thresholds(bflat.reshape(-1, n)[gid])
+    h = np.zeros(m)
+    cnt = np.bincount(t_row, minlength=m)
+    first = np.zeros(m, dtype=np.intp)
+    np.cumsum(cnt[:-1], out=first[1:])
+    last = first + cnt - 1
+    sw = np.empty(t_lev.size)
+    np.subtract(t_lev[1:], t_lev[:-1], out=sw[:-1])
+    sw[last] = t_lev[first] - t_lev[last]
+    np.abs(sw, out=sw)
+    s_min = np.minimum.reduceat(sw, first)
+    # the quantisation step is 0 or the smallest non-zero increment (of the non-periodic ones)
+    a_turn = np.abs(d.reshape(-1)[t_row * n + np.minimum(t_pos, n - 2)])
+    a_turn[t_pos > n - 2] = np.inf
+    q_bound = np.minimum.reduceat(a_turn, first)
+    easy = (2.5 * q_bound <= s_min) & (1e-12 * pp <= s_min)
+    ez = np.flatnonzero(easy)
+    proven = np.zeros(m, dtype=bool)
+    if ez.size:
+        proven[ez] = _threshold_below_swings(d, ez, s_min[ez], b_abs[ez])
+    hard = np.flatnonzero(~proven)
+    if hard.size:
+        h[hard] = _reversal_thresholds(bflat.reshape(-1, n)[gid[hard]])
+    return h
 
 
 class _Work:
@@ -853,7 +909,7 @@ def _first_bad(b, row0):
     return ValueError(f"b has a non-finite value at row {row0 + r}, column {c}: {b[r, c]!r}")
 
 
-def _chunk(b, scale, alpha, expo, minor_loops, thr, row0, buf, work):
+def _chunk(b, scale, alpha, expo, minor_loops, row0, buf, work):
     """Losses of the rows of one chunk; minor-loop rows go to ``buf`` (their entry is left NaN)."""
     n_rows, n = b.shape
     bmax = b.max(axis=1)
@@ -873,46 +929,13 @@ def _chunk(b, scale, alpha, expo, minor_loops, thr, row0, buf, work):
     w_major[flat_row] = 0.0
     if not minor_loops:
         return scale * w_major * total
-    up = work.up[:n_rows]
-    change = work.change[:n_rows]
-    counts, flat = _turning_info(d, a, up, change)
+    counts, flat = _turning_info(d, a, work.up[:n_rows], work.change[:n_rows])
     out = np.where(counts == 2, scale * w_major * total, 0.0)
     rows = np.flatnonzero(counts > 2)
-    if rows.size == 0:
-        return out
-    out[rows] = np.nan
-    t_row, t_pos = _minor_turns(d, up, change, flat, rows)
-    t_lev = b[rows[t_row], t_pos]
-    if thr is not None:
-        h = thr[rows]
-    elif n < 5 or n >= _REDUCE_MIN_SAMPLES:
-        h = _reversal_thresholds(b[rows])
-    else:
-        h = np.zeros(rows.size)
-        # smallest swing between consecutive turning points of each row (cyclic)
-        cnt = np.bincount(t_row, minlength=rows.size)
-        first = np.zeros(rows.size, dtype=np.intp)
-        np.cumsum(cnt[:-1], out=first[1:])
-        last = first + cnt - 1
-        sw = np.empty(t_lev.size)
-        np.subtract(t_lev[1:], t_lev[:-1], out=sw[:-1])
-        sw[last] = t_lev[first] - t_lev[last]
-        np.abs(sw, out=sw)
-        s_min = np.minimum.reduceat(sw, first)
-        # the quantisation step is 0 or the smallest non-zero increment (of the non-periodic ones)
-        inner = t_pos <= n - 2
-        a_turn = np.where(inner, a[rows[t_row], np.minimum(t_pos, n - 2)], np.inf)
-        q_bound = np.minimum.reduceat(a_turn, first)
-        easy = (2.5 * q_bound <= s_min) & (1e-12 * pp[rows] <= s_min)
-        ez = np.flatnonzero(easy)
-        proven = np.zeros(rows.size, dtype=bool)
-        if ez.size:
-            b_abs = np.maximum(np.abs(bmax[rows[ez]]), np.abs(bmin[rows[ez]]))
-            proven[ez] = _threshold_below_swings(d, rows[ez], s_min[ez], b_abs)
-        hard = np.flatnonzero(~proven)
-        if hard.size:
-            h[hard] = _reversal_thresholds(b[rows[hard]])
-    buf.add(row0 + rows, q, rows, t_row, t_pos, t_lev, h)
+    if rows.size:
+        out[rows] = np.nan
+        b_abs = np.maximum(np.abs(bmax[rows]), np.abs(bmin[rows]))
+        buf.add(row0 + rows, q, d, rows, flat[rows], pp[rows], b_abs)
     return out
 
 
@@ -967,12 +990,11 @@ def igse_batch(b, period, k, alpha, beta, minor_loops: bool = True, *, threshold
     out = np.empty(n_rows)
     step = max(1, CHUNK_SAMPLES // n)
     cap = max(1, MINOR_SAMPLES // n)
-    buf = _MinorBuffer(arr.reshape(-1), n, cap + step, beta - alpha) if minor_loops else None
+    buf = _MinorBuffer(arr.reshape(-1), n, cap + step, beta - alpha, thr) if minor_loops else None
     work = _Work(min(step, n_rows), n)
     for i in range(0, n_rows, step):
         sl = slice(i, min(i + step, n_rows))
-        out[sl] = _chunk(arr[sl], scale[sl], alpha, beta - alpha, bool(minor_loops),
-                         None if thr is None else thr[sl], i, buf, work)
+        out[sl] = _chunk(arr[sl], scale[sl], alpha, beta - alpha, bool(minor_loops), i, buf, work)
         if buf is not None and (buf.size >= cap or sl.stop == n_rows) and buf.size:
             gid, sums = buf.flush()
             out[gid] = scale[gid] * sums
