@@ -242,13 +242,14 @@ def _threshold_below_swings(d, rows, s_min, b_abs):
     t = s_min * (_MAD_SCALE / NOISE_THRESHOLD_SIGMAS) * (1.0 - 1e-9) - 16.0 * _EPS * b_abs
     ok = np.zeros(rows.size, dtype=bool)
     todo = np.flatnonzero(t > 0)
-    for w in (min(m, need + max(8, m // 8)), m):
+    lead = min(m, -(-(need + max(8, m // 16)) // 8) * 8)  # whole 8-byte words for the popcount
+    for w in (lead, m):
         if todo.size == 0:
             break
         src = d[:, : w + 1] if todo.size == d.shape[0] else d[rows[todo], : w + 1]
         dd = np.subtract(src[:, 1:], src[:, :-1])
         np.abs(dd, out=dd)
-        hit = np.count_nonzero(dd <= t[todo, None], axis=1) >= need
+        hit = _row_counts(dd <= t[todo, None], w) >= need
         ok[todo[hit]] = True
         todo = todo[~hit]
         if w == m:
@@ -286,41 +287,31 @@ def _compressed_turns(up_rows: np.ndarray, nz_rows: np.ndarray):
 _popcount = getattr(np, "bitwise_count", None)  # numpy >= 2.0
 
 
-def _turning_info(d: np.ndarray, a: np.ndarray, up: np.ndarray, change: np.ndarray):
-    """Turning-point count of every row (flat stretches skipped) and which rows have flats.
+def _turning_counts(d: np.ndarray, up: np.ndarray, change: np.ndarray) -> np.ndarray:
+    """Sign changes of the increments of every row, flat increments taken as falling.
 
     ``up`` and ``change`` are work arrays, shape (R, >= n) with zero padding
-    beyond n. On return ``change[r, i]`` marks a sign change of the increments
-    at sample i, flat increments taken as falling: exact for rows without flat
-    segments. Treating a flat as falling can only add turning points (a pause
-    in a rise counts twice), never remove one, so a row with 2 such changes has
-    exactly 2; the exact count from the non-zero increments is computed only
-    for rows above 2 that have flat segments.
-
-    Returns
-    -------
-    counts : ndarray of int
-        Turning points per row.
-    flat : ndarray of bool
-        Rows with flat segments among those whose plain count exceeds 2
-        (False elsewhere).
+    beyond n; on return ``change[r, i]`` marks a sign change at sample i. The
+    count is the number of turning points for rows without flat segments.
+    Treating a flat as falling can only add turning points (a pause in a rise
+    counts twice), never remove one, so a row with 2 such changes has exactly
+    2 turning points; rows above 2 are sorted out later.
     """
-    n_rows, n = d.shape
+    n = d.shape[1]
     np.greater(d, 0.0, out=up[:, :n])
     np.not_equal(up[:, 1:n], up[:, : n - 1], out=change[:, 1:n])
     np.not_equal(up[:, 0], up[:, n - 1], out=change[:, 0])
-    if _popcount is not None and change.shape[1] % 8 == 0:
-        counts = _popcount(change.view(np.uint64)).sum(axis=1, dtype=np.intp)
-    else:
-        counts = np.count_nonzero(change[:, :n], axis=1)
-    flat = np.zeros(n_rows, dtype=bool)
-    many = counts > 2
-    if many.any():
-        flat = many & (a.min(axis=1) == 0)  # contiguous reduction: cheaper than gathering rows
-        if flat.any():
-            fr = np.flatnonzero(flat)
-            counts[fr] = _compressed_turns(up[fr, :n], d[fr] != 0)[0]
-    return counts, flat
+    return _row_counts(change, n)
+
+
+def _row_counts(mask: np.ndarray, width: int) -> np.ndarray:
+    """Number of True entries in each row of a bool array whose columns beyond ``width`` are False.
+
+    With rows of whole 8-byte words the count is a popcount of the words.
+    """
+    if _popcount is not None and mask.shape[1] % 8 == 0 and mask.flags.c_contiguous:
+        return _popcount(mask.view(np.uint64)).sum(axis=1, dtype=np.intp)
+    return np.count_nonzero(mask[:, :width], axis=1)
 
 
 def _minor_turns(d, up, change, flat, rows):
@@ -821,23 +812,46 @@ class _MinorBuffer:
 
     def clear(self):
         self.size = 0
-        self.gid, self.flat, self.pp, self.b_abs = [], [], [], []
+        self.gid, self.pp, self.b_abs = [], [], []
 
-    def add(self, gid, q, d, local, flat, pp, b_abs):
+    def add(self, gid, q, d, local, pp, b_abs):
         k = self.size
         np.take(q, local, axis=0, out=self.c[k : k + local.size])
         np.take(d, local, axis=0, out=self.d[k : k + local.size])
         self.gid.append(gid)
-        self.flat.append(flat)
         self.pp.append(pp)
         self.b_abs.append(b_abs)
         self.size += local.size
 
     def flush(self):
+        """Loss sums (before the per-row scale) of the buffered rows, and their batch rows."""
         m, n = self.size, self.n
         gid = np.concatenate(self.gid)
-        flat = np.concatenate(self.flat)
+        pp = np.concatenate(self.pp)
+        b_abs = np.concatenate(self.b_abs)
         d = self.d[:m]
+        c = self.c[:m]
+        sums = np.empty(m)
+        # rows with flat segments: exact turning count from the non-zero increments
+        flat = (d == 0).any(axis=1)
+        if flat.any():
+            fr = np.flatnonzero(flat)
+            simple = fr[_compressed_turns(d[fr] > 0, d[fr] != 0)[0] == 2]
+            if simple.size:  # one rise and one fall after all: the whole path is the major loop
+                sums[simple] = pp[simple] ** self.expo * c[simple].sum(axis=1)
+                keep = np.ones(m, dtype=bool)
+                keep[simple] = False
+                rest = np.flatnonzero(keep)
+                if rest.size:
+                    sums[rest] = self._loops(gid[rest], c[rest], d[rest], flat[rest], pp[rest], b_abs[rest])
+                self.clear()
+                return gid, sums
+        sums[:] = self._loops(gid, c, d, flat, pp, b_abs)
+        self.clear()
+        return gid, sums
+
+    def _loops(self, gid, c, d, flat, pp, b_abs):
+        m, n = d.shape
         up = d > 0
         change = np.empty((m, n), dtype=bool)
         np.not_equal(up[:, 1:], up[:, :-1], out=change[:, 1:])
@@ -847,11 +861,8 @@ class _MinorBuffer:
         if self.thr is not None:
             h = self.thr[gid]
         else:
-            h = _minor_thresholds(self.bflat, d, gid, t_row, t_pos, t_lev,
-                                  np.concatenate(self.pp), np.concatenate(self.b_abs))
-        sums = _minor_sums(self.bflat, self.c[:m], n, gid, t_row, t_pos, t_lev, h, self.expo)
-        self.clear()
-        return gid, sums
+            h = _minor_thresholds(self.bflat, d, gid, t_row, t_pos, t_lev, pp, b_abs)
+        return _minor_sums(self.bflat, c, n, gid, t_row, t_pos, t_lev, h, self.expo)
 
 
 def _minor_thresholds(bflat, d, gid, t_row, t_pos, t_lev, pp, b_abs):
@@ -929,13 +940,13 @@ def _chunk(b, scale, alpha, expo, minor_loops, row0, buf, work):
     w_major[flat_row] = 0.0
     if not minor_loops:
         return scale * w_major * total
-    counts, flat = _turning_info(d, a, work.up[:n_rows], work.change[:n_rows])
+    counts = _turning_counts(d, work.up[:n_rows], work.change[:n_rows])
     out = np.where(counts == 2, scale * w_major * total, 0.0)
     rows = np.flatnonzero(counts > 2)
     if rows.size:
         out[rows] = np.nan
         b_abs = np.maximum(np.abs(bmax[rows]), np.abs(bmin[rows]))
-        buf.add(row0 + rows, q, d, rows, flat[rows], pp[rows], b_abs)
+        buf.add(row0 + rows, q, d, rows, pp[rows], b_abs)
     return out
 
 
