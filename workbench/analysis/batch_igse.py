@@ -100,7 +100,7 @@ def _simd_exp_log() -> bool:
 
 
 def _abs_power(a: np.ndarray, alpha: float, out: np.ndarray) -> np.ndarray:
-    """``a**alpha`` for non-negative a, into ``out``.
+    """``a**alpha`` for non-negative a, into ``out`` (which may be ``a`` itself).
 
     Where numpy has vectorised exp and log kernels, ``exp(alpha * log(a))`` is
     about 1.5x faster than ``np.power`` and agrees with it to a few 1e-15
@@ -908,7 +908,6 @@ class _Work:
 
     def __init__(self, rows: int, n: int):
         self.d = np.empty((rows, n))
-        self.a = np.empty((rows, n))
         self.q = np.empty((rows, n))
         width = -(-n // 8) * 8  # whole 8-byte words per row for the popcount
         self.up = np.zeros((rows, width), dtype=bool)
@@ -930,8 +929,8 @@ def _chunk(b, scale, alpha, expo, minor_loops, row0, buf, work):
     d = work.d[:n_rows]
     np.subtract(b[:, 1:], b[:, :-1], out=d[:, :-1])
     np.subtract(b[:, 0], b[:, -1], out=d[:, -1])
-    a = np.abs(d, out=work.a[:n_rows])
-    q = _abs_power(a, alpha, work.q[:n_rows])
+    q = np.abs(d, out=work.q[:n_rows])
+    _abs_power(q, alpha, q)
     total = q.sum(axis=1)
     pp = bmax - bmin
     flat_row = pp == 0
