@@ -13,14 +13,16 @@ passage), and ``Delta B_j`` is that loop's peak-to-peak flux. The power
 ``|dB_i|**alpha`` is the expensive part and is computed once per sample; the
 loop procedure only decides which weight each piece of flux path gets.
 
-* One pass over every row computes ``|dB|**alpha``, its row sum, the row's
-  peak-to-peak flux and its number of turning points (flat stretches skipped).
-  Rows that rise once and fall once per period (sine, triangle, trapezoid, ...)
-  are done: their loss is ``flux_pp**(beta-alpha)`` times the sum.
-* Rows with more turning points are buffered (their ``|dB|**alpha`` and their
-  turning points) and handled together, many hundred rows at a time, with work
-  that grows with the number of *reversals*, not samples, plus one segmented
-  sum (``np.add.reduceat``) over their samples.
+* One pass over every row, in cache-sized chunks, computes ``|dB|**alpha``
+  (as ``exp(alpha log|dB|)`` where numpy has vector exp/log kernels), its row
+  sum, the row's peak-to-peak flux and its number of sign changes. Rows that
+  rise once and fall once per period (sine, triangle, trapezoid, ...) are done:
+  their loss is ``flux_pp**(beta-alpha)`` times the sum.
+* Rows with more sign changes are copied (increments and ``|dB|**alpha``) into
+  a buffer and handled together, about a thousand rows at a time: turning
+  points, threshold, rainflow pairing and ownership with work that grows with
+  the number of *reversals*, not samples, plus one segmented sum
+  (``np.add.reduceat``) over their samples.
 
 Ownership by levels
 -------------------
@@ -825,7 +827,7 @@ class _MinorBuffer:
 
     def flush(self):
         """Loss sums (before the per-row scale) of the buffered rows, and their batch rows."""
-        m, n = self.size, self.n
+        m = self.size
         gid = np.concatenate(self.gid)
         pp = np.concatenate(self.pp)
         b_abs = np.concatenate(self.b_abs)
@@ -916,7 +918,7 @@ class _Work:
 
 def _first_bad(b, row0):
     r, c = np.argwhere(~np.isfinite(b))[0]
-    return ValueError(f"b has a non-finite value at row {row0 + r}, column {c}: {b[r, c]!r}")
+    return ValueError(f"b has a non-finite value at row {row0 + r}, column {c}: {float(b[r, c])!r}")
 
 
 def _chunk(b, scale, alpha, expo, minor_loops, row0, buf, work):
