@@ -209,17 +209,26 @@ def test_frequency_panel_renders_and_responds(lab_server):
                 "(old) => document.querySelector('.fluxheat-crossover').textContent.trim() !== old.trim()", arg=before,
                 timeout=30_000)
             _wait_idle(lab_server)
-            after = crossover.first.inner_text()
-            # a thicker sheet has more classical eddy loss, so the crossover moves down (f_x ~ rho / d^2)
-            assert _crossover_hz(after) < _crossover_hz(before), (before, after)
-            assert _ink(canvas.screenshot()) > 2000
-            # the dashed crossover marker in the plot follows the number in the text
-            marker = page.evaluate("""() => {
+            # the key presses send several updates: wait until the dashed crossover marker in the
+            # plot and the number in the text describe the same (last) state, then compare them
+            marker_js = """() => {
                 const doc = Bokeh.documents.find(d => d.get_model_by_name('crossover_marker'));
                 const m = doc.get_model_by_name('crossover_marker');
                 return [m.location, m.visible];
-            }""")
-            assert marker[1] and marker[0] == pytest.approx(_crossover_hz(after), rel=2e-3)
+            }"""
+            settle = time.monotonic() + 30
+            while True:
+                after = crossover.first.inner_text()
+                marker = page.evaluate(marker_js)
+                agree = marker[1] and marker[0] == pytest.approx(_crossover_hz(after), rel=2e-3)
+                if agree or time.monotonic() > settle:
+                    break
+                time.sleep(0.25)
+            # a thicker sheet has more classical eddy loss, so the crossover moves down (f_x ~ rho / d^2)
+            assert _crossover_hz(after) < _crossover_hz(before), (before, after)
+            assert _ink(canvas.screenshot()) > 2000
+            # the marker follows the number in the text
+            assert marker[1] and marker[0] == pytest.approx(_crossover_hz(after), rel=2e-3), (marker, after)
             panel.screenshot(path=str(ARTIFACTS / "frequency_panel.png"))
         except BaseException:
             try:
