@@ -323,7 +323,7 @@ def fit_view(settings: FitSettings, *, colours=None) -> FitView:
 # ==========================================================================================
 import ipywidgets as widgets  # noqa: E402  (the widget half of the module)
 from bokeh.layouts import column  # noqa: E402
-from bokeh.models import ColumnDataSource, HoverTool, Span  # noqa: E402
+from bokeh.models import ColumnDataSource, HoverTool, NumeralTickFormatter, Span  # noqa: E402
 from jupyter_bokeh import BokehModel  # noqa: E402
 
 from workbench.materials import get_material, list_materials  # noqa: E402
@@ -469,6 +469,8 @@ class FitPanel(PanelBase):
                                                             ("error", "@rel_error_pct{0.0} %")]))
         self.energy_figure = en = new_figure("fit_energy", title="Energy per cycle P/f (straight line: W_h + s·f)",
                                              x_label="frequency f [Hz]", y_label="energy per cycle [J/m³]", height=300)
+        # a linear frequency axis (the method's straight line), labelled 0, 500k, 1M rather than 5.000e+5
+        en.xaxis.formatter = NumeralTickFormatter(format="0.[0]a")
         en.multi_line("xs", "ys", source=self.energy_source, line_color="colour", line_width=2.5)
         en.scatter("freq", "energy", source=self.points_source, size=8, fill_color="colour", line_color="#222222")
         self.plots = column(fig, res, en, name="fit_plots")
