@@ -280,3 +280,11 @@ def test_demo_captures_are_labelled_invented_and_small(name):
     path = ROOT / "data" / "captures" / name
     assert path.stat().st_size < 500_000
     assert path.read_text(encoding="utf-8").startswith("# INVENTED DEMO DATA")
+
+
+def test_discontinuous_mode_flux_is_a_waveform_with_a_zero_voltage_interval():
+    # common practice, no source: in discontinuous conduction the winding voltage is zero
+    # while the core idles, so the flux rises, falls and then dwells
+    t = [0.0, 0.4e-5, 0.8e-5]
+    dcm = wf.FluxWaveform(t, [-0.1, 0.1, -0.1], 1e-5).resample(1000)
+    assert classify_waveform(dcm) == "trapezoidal"

@@ -428,9 +428,9 @@ def classify_waveform(waveform: FluxWaveform, threshold: float | None = None) ->
       (a square wave, the dB/dt of a triangle, reaches only
       :math:`\\sqrt{8}/\\pi \\approx 0.90`);
     * otherwise, with more than one rise and one fall (minor loops): other;
-    * trapezoidal: two flat intervals (|dB/dt| below 10 % of its peak) covering
-      at least 5 % of the period, the zero-voltage intervals of a three-level
-      bridge;
+    * trapezoidal: one or two flat intervals (|dB/dt| below 10 % of its peak)
+      covering at least 5 % of the period: the zero-voltage intervals of a
+      three-level bridge, or the idle interval of a discontinuous-mode converter;
     * triangular: no flat interval, and on at least 80 % of the rising and of
       the falling time the slope stays within 20 % of its median (|dB/dt| takes
       two levels);
@@ -450,7 +450,9 @@ def classify_waveform(waveform: FluxWaveform, threshold: float | None = None) ->
     if w.reversals(threshold).size > 2:
         return "other"
     flat = flat_mask(w)
-    if flat.mean() >= 0.05 and _runs(flat) == 2:
+    # one dwell (the idle interval of a discontinuous-mode converter) or two (a three-level
+    # bridge): either way the flux stops while the winding voltage is zero
+    if flat.mean() >= 0.05 and _runs(flat) in (1, 2):
         return "trapezoidal"
     if flat.mean() < 0.05:
         ok = []

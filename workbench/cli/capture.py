@@ -163,7 +163,7 @@ def render(result) -> str:
     rows.append(("model loss", _fmt(result.model_loss, "W/m3")))
     if result.model is not None and result.model.n_minor_loops:
         rows.append(("  from minor loops", f"{100 * result.model.minor_loop_share:.1f} % "
-                                           f"({result.model.n_minor_loops} loops)"))
+                                           f"({result.model.n_minor_loops} loop{'' if result.model.n_minor_loops == 1 else 's'})"))
     if result.hysteresis is not None:
         separation = result.hysteresis + result.classical + result.excess
         rows += [("separation model", _fmt(separation, "W/m3")),

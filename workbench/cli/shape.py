@@ -66,7 +66,7 @@ def run(args) -> int:
     if bd is not None:
         rows.append(("loss per mass", format_quantity(bd.total_w_kg, "W/kg", 4)))
     if bd is not None and bd.n_minor_loops:
-        rows.append(("  from minor loops", f"{100 * bd.minor_loop_share:.1f} % ({bd.n_minor_loops} loops)"))
+        rows.append(("  from minor loops", f"{100 * bd.minor_loop_share:.1f} % ({bd.n_minor_loops} loop{'' if bd.n_minor_loops == 1 else 's'})"))
     if hyst is not None:
         rows += [("separation model", format_quantity(hyst + classical + excess, "W/m3", 4)),
                  ("  hysteresis", format_quantity(hyst, "W/m3", 4)), ("  classical eddy", format_quantity(classical, "W/m3", 4)),
