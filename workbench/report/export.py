@@ -18,10 +18,8 @@ bokeh is imported only by :func:`write_html`.
 from __future__ import annotations
 
 import csv
-import dataclasses
 import io
 import json
-import math
 import re
 from collections.abc import Mapping
 from datetime import datetime, timezone
@@ -31,6 +29,7 @@ import numpy as np
 
 from workbench import __version__
 from workbench.fileio import write_text_atomic
+from workbench.jsonsafe import to_jsonable
 
 __all__ = [
     "PACKAGE_NAME",
@@ -82,35 +81,6 @@ def atomic_write_text(path, text: str, *, encoding: str = "utf-8") -> Path:
 def package_info() -> dict:
     """Name and version of this package, for every record."""
     return {"package": PACKAGE_NAME, "version": __version__}
-
-
-def to_jsonable(value):
-    """Convert numpy types, tuples, dataclasses and non-finite floats to plain JSON values.
-
-    NaN and infinities become None (JSON has no such numbers).
-    """
-    if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        if hasattr(value, "to_dict"):
-            return to_jsonable(value.to_dict())
-        return to_jsonable(dataclasses.asdict(value))
-    if isinstance(value, Mapping):
-        return {str(k): to_jsonable(v) for k, v in value.items()}
-    if isinstance(value, np.ndarray):
-        return [to_jsonable(v) for v in value.tolist()]
-    if isinstance(value, (list, tuple)):
-        return [to_jsonable(v) for v in value]
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        x = float(value)
-        return x if math.isfinite(x) else None
-    if value is None or isinstance(value, str):
-        return value
-    if isinstance(value, Path):
-        return str(value)
-    raise ValueError(f"cannot export a value of type {type(value).__name__}: {value!r}")
 
 
 def build_record(kind: str, inputs: Mapping, results: Mapping) -> dict:
