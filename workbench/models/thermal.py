@@ -14,19 +14,19 @@ import numpy as np
 from scipy import constants
 
 __all__ = [
+    "DEFAULT_EMISSIVITY",
     "AirProperties",
     "air_properties",
-    "rayleigh_number",
-    "nusselt_vertical_churchill_chu",
+    "characteristic_height",
     "convection_coefficient",
+    "handbook_heat_loss",
+    "handbook_temperature_rise",
+    "nusselt_vertical_churchill_chu",
     "radiation_coefficient",
+    "rayleigh_number",
     "surface_heat_loss",
     "surface_heat_loss_slope",
-    "handbook_temperature_rise",
-    "handbook_heat_loss",
     "thermal_resistance",
-    "characteristic_height",
-    "DEFAULT_EMISSIVITY",
 ]
 
 ZERO_CELSIUS = constants.zero_Celsius            # 273.15 K
