@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 import pytest
 from hypothesis import given
 from hypothesis import strategies as st
@@ -210,3 +211,74 @@ def test_scale_by_power_of_ten_is_one_rounding():
     assert scale_by_power_of_ten(500.0, -9) == 5e-7
     assert scale_by_power_of_ten(2.5, 3) == 2500.0
     assert scale_by_power_of_ten(7.0, 0) == 7.0
+
+
+# --- plausibility at the edges (issue 11 item 5, issue 10 plausibility) -----------------------
+# Ranges: common practice, no source (absolute zero is -273.15 degC by the SI definition of the
+# kelvin; laminations are thinner than 10 mm; a winding has at least one turn).
+@pytest.mark.parametrize("text, kind, word", [
+    ("-300", "temperature", "too small"),
+    ("-273.15", "temperature", "too small"),
+    ("1e6", "temperature", "too large"),
+    ("1e3", "thickness", "too large"),
+    ("0.5", "thickness", "too large"),
+    ("1e-300", "resistivity", "too small"),
+    ("1e-300", "turns", "too small"),
+    ("52", "area", "too large"),
+    ("1e-13", "area", "too small"),
+])
+def test_parse_checked_refuses_values_orders_of_magnitude_off(text, kind, word):
+    from workbench.units import parse_checked
+
+    with pytest.raises(ValueError, match=word) as info:
+        parse_checked(text, kind, name=f"--{kind}")
+    msg = str(info.value)
+    assert f"--{kind}" in msg and len(msg) < 300
+
+
+@pytest.mark.parametrize("text, kind, si", [
+    ("20mm", "thickness", 0.02),
+    ("300", "temperature", 300.0),
+    ("2 m2", "area", 2.0),
+])
+def test_parse_checked_warns_outside_the_usual_range(text, kind, si):
+    from workbench.units import parse_checked
+
+    value, warnings = parse_checked(text, kind, name=f"--{kind}")
+    assert value == pytest.approx(si)
+    assert len(warnings) == 1 and "usual range" in warnings[0]
+
+
+@pytest.mark.parametrize("text, kind, si", [
+    ("52mm2", "area", 52e-6), ("0.35mm", "thickness", 0.35e-3), ("-40", "temperature", -40.0),
+    ("52 uohm cm", "resistivity", 52e-8), ("1", "turns", 1.0), ("7.65 g/cm3", "density", 7650.0),
+])
+def test_parse_checked_passes_ordinary_values_silently(text, kind, si):
+    from workbench.units import parse_checked
+
+    value, warnings = parse_checked(text, kind, name=kind)
+    assert value == pytest.approx(si, rel=1e-12) and warnings == ()
+
+
+@pytest.mark.parametrize("text, hint", [("５", "digits 0-9"), ("٣", "digits 0-9"), ("1_000", "digit separators")])
+def test_non_ascii_digits_and_digit_separators_are_refused(text, hint):
+    with pytest.raises(ValueError, match=hint):
+        parse_quantity(text, "", name="x")
+
+
+def test_booleans_are_not_numbers_anywhere():
+    from workbench.checks import finite_number, positive_array, positive_number
+
+    for fn in (positive_number, finite_number, positive_array):
+        with pytest.raises(ValueError, match="must be a number"):
+            fn(True, "turns")
+    with pytest.raises(ValueError, match="must be a number"):
+        positive_array(np.array([True, False]), "freq")
+
+
+def test_finite_result_names_the_inputs():
+    from workbench.checks import finite_result
+
+    with pytest.raises(ValueError, match="freq=1e\\+308"):
+        finite_result(np.float64(np.inf), "loss", freq=1e308)
+    assert finite_result(2.0, "loss", freq=1.0) == 2.0

@@ -37,6 +37,7 @@ __all__ = [
     "unit_scale",
     "scale_by_power_of_ten",
     "parse_quantity",
+    "parse_checked",
     "format_quantity",
 ]
 
@@ -79,7 +80,7 @@ _ATOM_RE: Final = re.compile(
     rf"^(?P<prefix>{_prefix_alt})?(?P<base>{_base_alt})(?:\^?(?P<exp>-?\d+))?$"
 )
 _NUMBER_RE: Final = re.compile(
-    r"^\s*(?P<num>[+-]?(?:\d+\.?\d*|\.\d+))(?:[eE](?P<exp>[+-]?\d+))?\s*(?P<unit>.*?)\s*$"
+    r"^\s*(?P<num>[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+))(?:[eE](?P<exp>[+-]?[0-9]+))?\s*(?P<unit>.*?)\s*$"
 )
 _SEPARATORS_RE: Final = re.compile(r"[\s*·⋅.]+")
 
@@ -313,11 +314,16 @@ def parse_quantity(text: str | float | int, unit: str, *, name: str) -> float:
         raise ValueError(f"{name}: expected text or a number, got {text!r}")
     if text.strip().lower().lstrip("+-") in ("inf", "infinity", "nan"):
         raise ValueError(f"{name}: value must be finite, got {text!r}")
+    if re.search(r"[0-9]_[0-9]", text):
+        raise ValueError(f"{name}: cannot read {text!r} as a quantity in {want} "
+                         "(write numbers without digit separators)")
     match = _NUMBER_RE.match(text)
     if match is None:
         hint = ""
         if re.match(r"^\s*[+-]?\d+,\d+", text):
             hint = " (use a decimal point, not a comma)"
+        elif any(c.isdigit() and not c.isascii() for c in text):
+            hint = " (use the digits 0-9)"
         raise ValueError(f"{name}: cannot read {text!r} as a quantity in {want}{hint}")
     suffix = match["unit"]
     if suffix.startswith(","):
@@ -335,6 +341,64 @@ def parse_quantity(text: str | float | int, unit: str, *, name: str) -> float:
     if not math.isfinite(value):
         raise ValueError(f"{name}: value must be finite, got {text!r}")
     return value
+
+
+def parse_checked(text: str | float | int, kind: str, *, name: str,
+                  unit: str | None = None) -> tuple[float, tuple[str, ...]]:
+    """Read a quantity typed by a person and check it against its plausible range.
+
+    Parameters
+    ----------
+    text : str or float
+        The quantity, as for :func:`parse_quantity`.
+    kind : str
+        Kind of quantity, a key of :data:`workbench.checks.PLAUSIBLE` (``"area"``,
+        ``"thickness"``, ``"temperature"``, ``"resistivity"``, ``"turns"``, ...).
+    name : str
+        Name of the parameter or option, used in messages (``"--area"``).
+    unit : str, optional
+        Expected SI unit (default the kind's own: ``"m2"`` for an area, ``"degC"`` for a
+        temperature, ``""`` for turns).
+
+    Returns
+    -------
+    value : float
+        The value in SI.
+    warnings : tuple of str
+        One sentence when the value is outside the usual range of its kind (for the
+        result's warnings), else empty.
+
+    Raises
+    ------
+    ValueError
+        Unreadable text (see :func:`parse_quantity`), or a value beyond the hard limits of
+        :func:`workbench.checks.check_quantity` (``--temperature -300``, ``--thickness 1e3``,
+        ``--resistivity 1e-300``, ``--turns 1e-300``).
+
+    Notes
+    -----
+    The parsing is :func:`parse_quantity`; the range check is
+    :func:`workbench.checks.check_quantity`, so the edges and the library share one rule.
+
+    References
+    ----------
+    .. [1] BIPM, "The International System of Units (SI)", 9th edition, 2019.
+    """
+    from workbench.checks import PLAUSIBLE, check_quantity
+
+    if kind not in PLAUSIBLE:
+        raise ValueError(f"unknown quantity kind {kind!r}; known: {', '.join(sorted(PLAUSIBLE))}")
+    if unit is None:
+        unit = _KIND_UNITS.get(kind, PLAUSIBLE[kind].unit)
+    value = parse_quantity(text, unit, name=name)
+    return check_quantity(value, kind, name=name)
+
+
+#: SI unit spelling of each plausibility kind in this module's grammar.
+_KIND_UNITS: Final[dict[str, str]] = {
+    "area": "m2", "volume": "m3", "path_length": "m", "thickness": "m", "resistivity": "ohm m",
+    "temperature": "degC", "turns": "", "freq": "Hz", "b_peak": "T", "density": "kg/m3",
+}
 
 
 def _suffix_exponent(suffix: str, unit: str) -> int:
