@@ -40,6 +40,7 @@ __all__ = [
     "SteinmetzParams",
     "SeparationParams",
     "RelaxationParams",
+    "BiasParams",
     "Material",
     "bundled_library_path",
     "user_library_path",
@@ -259,6 +260,48 @@ class RelaxationParams:
 
 
 @dataclass(frozen=True)
+class BiasParams:
+    """Steinmetz parameters under DC bias, as a table against the bias field strength.
+
+    Parameters
+    ----------
+    h_dc : tuple of float
+        DC bias field strengths, increasing from 0 [A/m].
+    k_ratio : tuple of float
+        k at each bias over k without bias [-] (1 at 0 A/m).
+    alpha_shift : tuple of float
+        alpha at each bias minus alpha without bias [-] (0 at 0 A/m).
+    beta_shift : tuple of float
+        beta at each bias minus beta without bias [-] (0 at 0 A/m).
+
+    Notes
+    -----
+    At bias :math:`H_{dc}` the sine loss density is
+
+    .. math:: P = k\\, r_k(H_{dc})\\, f^{\\alpha + \\Delta\\alpha(H_{dc})}
+              \\hat B^{\\beta + \\Delta\\beta(H_{dc})}
+
+    with the material's unbiased k, alpha, beta and the table interpolated linearly
+    (:func:`workbench.models.bias.bias_steinmetz`).
+
+    References
+    ----------
+    .. [1] J. Muehlethaler, J. Biela, J. W. Kolar, A. Ecklebe, "Core losses under the DC
+       bias condition based on Steinmetz parameters", IEEE Trans. Power Electron.,
+       27(2), pp. 953-963, 2012 (Steinmetz parameters against premagnetisation).
+    """
+
+    h_dc: tuple
+    k_ratio: tuple
+    alpha_shift: tuple
+    beta_shift: tuple
+
+    def __post_init__(self):
+        for name in _BIAS_FIELDS:
+            object.__setattr__(self, name, tuple(getattr(self, name)))
+
+
+@dataclass(frozen=True)
 class Material:
     """A magnetic material with its loss coefficients and their provenance.
 
@@ -287,6 +330,11 @@ class Material:
         Loss-separation coefficients (laminated metals).
     relaxation : RelaxationParams or None
         i2GSE relaxation coefficients.
+    limit_temperature : float or None
+        Highest core temperature that is a working point [degC]: the Curie temperature
+        of a ferrite, the insulation class otherwise; None when not given.
+    bias : BiasParams or None
+        Steinmetz parameters under DC bias.
     sources : Mapping[str, str]
         Provenance of every numeric value, keyed by field path
         (``"density"``, ``"steinmetz.k"``, ``"steinmetz.temperature.ct0"``,
@@ -306,6 +354,8 @@ class Material:
     steinmetz: SteinmetzParams
     separation: SeparationParams | None = None
     relaxation: RelaxationParams | None = None
+    limit_temperature: float | None = None
+    bias: BiasParams | None = None
     sources: Mapping[str, str] = field(default_factory=dict, hash=False)
     origin: str = "bundled"
 
@@ -334,6 +384,7 @@ _RANGE_FIELDS = ("freq_range", "b_range")
 _TEMPERATURE_FIELDS = ("ct0", "ct1", "ct2")
 _SEPARATION_FIELDS = ("k_hyst", "beta_hyst", "k_excess")
 _RELAXATION_FIELDS = ("k_r", "alpha_r", "beta_r", "tau", "q_r")
+_BIAS_FIELDS = ("h_dc", "k_ratio", "alpha_shift", "beta_shift")
 
 # path -> (low, high, low_inclusive, hint); None means unbounded
 _LIMITS: Mapping[str, tuple] = MappingProxyType({
@@ -356,6 +407,8 @@ _LIMITS: Mapping[str, tuple] = MappingProxyType({
     "relaxation.beta_r": (1.0, 4.0, True, "plausible exponent"),
     "relaxation.tau": (0.0, 1.0, False, "seconds expected"),
     "relaxation.q_r": (0.0, None, False, "positive exponent"),
+    "limit_temperature": (25.0, 1000.0, True,
+                          "degC expected (a Curie temperature or an insulation class, e.g. 155)"),
 })
 
 
@@ -410,6 +463,10 @@ def _numeric_paths(material: Material) -> list[str]:
         paths += [f"separation.{f}" for f in _SEPARATION_FIELDS]
     if material.relaxation is not None:
         paths += [f"relaxation.{f}" for f in _RELAXATION_FIELDS]
+    if material.limit_temperature is not None:
+        paths.append("limit_temperature")
+    if material.bias is not None:
+        paths += [f"bias.{f}" for f in _BIAS_FIELDS]
     return paths
 
 
@@ -468,6 +525,10 @@ def _validate_material(material: Material, where: str) -> None:
                         "must be a RelaxationParams")
         for f in _RELAXATION_FIELDS:
             _check_number(where, name, f"relaxation.{f}", getattr(material.relaxation, f))
+    if material.limit_temperature is not None:
+        _check_number(where, name, "limit_temperature", material.limit_temperature)
+    if material.bias is not None:
+        _check_bias(where, name, material.bias)
     needed = _numeric_paths(material)
     for path in needed:
         text = material.sources.get(path)
@@ -479,6 +540,39 @@ def _validate_material(material: Material, where: str) -> None:
     if extra:
         raise _fail(where, name, f"sources.{extra[0]}", material.sources[extra[0]],
                     "is a source for a value the material does not have")
+
+
+def _check_bias(where, name, bias):
+    """Bias table: equal lengths >= 2, h_dc from 0 increasing, ratios > 0, identity at 0."""
+    if not isinstance(bias, BiasParams):
+        raise _fail(where, name, "bias", bias, "must be a BiasParams")
+    columns = {}
+    for f in _BIAS_FIELDS:
+        values = getattr(bias, f)
+        path = f"bias.{f}"
+        if len(values) < 2:
+            raise _fail(where, name, path, list(values), "needs at least two bias levels")
+        for x in values:
+            if isinstance(x, bool) or not isinstance(x, (int, float, np.integer, np.floating)) \
+                    or not math.isfinite(float(x)):
+                raise _fail(where, name, path, list(values), "every entry must be a finite number")
+        columns[f] = np.asarray(values, dtype=float)
+    n = columns["h_dc"].size
+    for f in _BIAS_FIELDS[1:]:
+        if columns[f].size != n:
+            raise _fail(where, name, f"bias.{f}", list(getattr(bias, f)),
+                        f"has {columns[f].size} entries, bias.h_dc has {n}")
+    h = columns["h_dc"]
+    if h[0] != 0.0 or np.any(np.diff(h) <= 0):
+        raise _fail(where, name, "bias.h_dc", list(bias.h_dc),
+                    "must start at 0 and increase (A/m)")
+    if np.any(columns["k_ratio"] <= 0) or columns["k_ratio"][0] != 1.0:
+        raise _fail(where, name, "bias.k_ratio", list(bias.k_ratio),
+                    "must be positive and exactly 1 at h_dc = 0")
+    for f in ("alpha_shift", "beta_shift"):
+        if columns[f][0] != 0.0 or np.any(np.abs(columns[f]) > 1.0):
+            raise _fail(where, name, f"bias.{f}", list(getattr(bias, f)),
+                        "must be exactly 0 at h_dc = 0 and within +-1")
 
 
 def _value_at(material: Material, path: str):
@@ -537,7 +631,7 @@ def _material_from_table(where: str, name: str, table, origin: str) -> Material:
         raise ValueError(f"{where}: material '{name}' must be a table; got {table!r}")
     _check_keys(where, name, table,
                 ("family", "description", *_TOP_FIELDS, "steinmetz", "separation",
-                 "relaxation"), "")
+                 "relaxation", "limit_temperature", "bias"), "")
     sources: dict[str, str] = {}
     values: dict[str, object] = {}
     for key in ("family", "description"):
@@ -590,9 +684,28 @@ def _material_from_table(where: str, name: str, table, origin: str) -> Material:
             rvals[key], sources[path] = _entry(where, name, rp, key, path)
         relaxation = RelaxationParams(**rvals)
 
+    limit_temperature = None
+    if "limit_temperature" in table:
+        limit_temperature, sources["limit_temperature"] = _entry(
+            where, name, table, "limit_temperature", "limit_temperature")
+        _check_number(where, name, "limit_temperature", limit_temperature)
+
+    bias = None
+    bp = _section(where, name, table, "bias", False)
+    if bp is not None:
+        _check_keys(where, name, bp, _BIAS_FIELDS, "bias")
+        bvals = {}
+        for key in _BIAS_FIELDS:
+            path = f"bias.{key}"
+            bvals[key], sources[path] = _entry(where, name, bp, key, path)
+            if not isinstance(bvals[key], list):
+                raise _fail(where, name, path, bvals[key], "must be a list of numbers")
+        bias = BiasParams(**bvals)
+
     material = Material(
         name=name, family=table["family"], description=table["description"],
         steinmetz=steinmetz, separation=separation, relaxation=relaxation,
+        limit_temperature=limit_temperature, bias=bias,
         sources=sources, origin=origin, **values)
     _validate_material(material, where)
     # numbers as plain floats (TOML may give ints)
@@ -617,6 +730,9 @@ def _floats(m: Material) -> Material:
             float(m.separation.k_excess)),
         relaxation=None if m.relaxation is None else RelaxationParams(
             *(float(getattr(m.relaxation, f)) for f in _RELAXATION_FIELDS)),
+        limit_temperature=None if m.limit_temperature is None else float(m.limit_temperature),
+        bias=None if m.bias is None else BiasParams(
+            *(tuple(float(x) for x in getattr(m.bias, f)) for f in _BIAS_FIELDS)),
         sources=dict(m.sources), origin=m.origin)
 
 
@@ -849,6 +965,9 @@ def material_to_toml(material: Material) -> str:
              f"description = {_toml_string(material.description)}"]
     for key in _TOP_FIELDS:
         lines.append(_toml_item(key, getattr(material, key), src[key]))
+    if material.limit_temperature is not None:
+        lines.append(_toml_item("limit_temperature", material.limit_temperature,
+                                src["limit_temperature"]))
     st = material.steinmetz
     lines += ["", f"[{head}.steinmetz]"]
     for key in _STEINMETZ_FIELDS + _RANGE_FIELDS:
@@ -859,7 +978,8 @@ def material_to_toml(material: Material) -> str:
             lines.append(_toml_item(key, getattr(st.temperature, key),
                                     src[f"steinmetz.temperature.{key}"]))
     for section, fields in (("separation", _SEPARATION_FIELDS),
-                            ("relaxation", _RELAXATION_FIELDS)):
+                            ("relaxation", _RELAXATION_FIELDS),
+                            ("bias", _BIAS_FIELDS)):
         params = getattr(material, section)
         if params is not None:
             lines += ["", f"[{head}.{section}]"]
