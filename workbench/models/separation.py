@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from workbench.checks import positive_array
 from workbench.models.loops import decompose_loops
 from workbench.models.steinmetz import mean_abs_cos_power
 from workbench.waveforms import FluxWaveform
@@ -38,10 +39,7 @@ EXCESS_SINE_CONSTANT = float((2 * np.pi) ** 1.5 * mean_abs_cos_power(1.5))
 
 
 def _positive(value, name):
-    arr = np.asarray(value, dtype=float)
-    if not np.all(np.isfinite(arr)) or np.any(arr <= 0):
-        raise ValueError(f"{name} must be finite and positive, got {value!r}")
-    return arr
+    return positive_array(value, name)
 
 
 def _non_negative(value, name):

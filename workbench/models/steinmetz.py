@@ -10,6 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from workbench.checks import positive_array
 from workbench.models.loops import LoopSet, decompose_loops, loop_abs_dbdt_integrals
 from workbench.waveforms import FluxWaveform
 
@@ -29,13 +30,7 @@ __all__ = [
 
 def _check_steinmetz(k, alpha, beta):
     for name, value in (("k", k), ("alpha", alpha), ("beta", beta)):
-        if isinstance(value, (int, float)) and not isinstance(value, bool):
-            if math.isfinite(value) and value > 0:  # the common scalar case, without numpy overhead
-                continue
-            raise ValueError(f"{name} must be finite and positive, got {value!r}")
-        arr = np.asarray(value, dtype=float)
-        if not np.all(np.isfinite(arr)) or np.any(arr <= 0):
-            raise ValueError(f"{name} must be finite and positive, got {value!r}")
+        positive_array(value, name)
 
 
 def steinmetz(freq, b_peak, k, alpha, beta):

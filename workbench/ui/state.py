@@ -18,6 +18,7 @@ import numpy as np
 from workbench.analysis import SHAPES, sweep_frequency
 from workbench.analysis.compare import MaterialComparison, compare_materials, skin_knee_frequency
 from workbench.analysis.sweep import FrequencySweep
+from workbench.checks import positive_number
 from workbench.materials import get_material
 from workbench.units import format_quantity
 
@@ -36,13 +37,7 @@ __all__ = [
 
 
 def _check_positive(name: str, value) -> float:
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name} must be a positive number, got {value!r}") from None
-    if not math.isfinite(x) or x <= 0:
-        raise ValueError(f"{name} must be finite and positive, got {value!r}")
-    return x
+    return positive_number(value, name)
 
 
 def _check_common(shape, duty, f_min, f_max, n_points):
