@@ -17,6 +17,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from workbench.capture.flux import flux_density
+from workbench.capture.steady_state import checked_record, fold_periods
+
 __all__ = [
     "FluxWaveform",
     "Spectrum",
@@ -867,48 +870,10 @@ def pwm(
     return FluxWaveform(np.arange(t.size) * dt, b, period)
 
 
-def _fold_periods(t: np.ndarray, y: np.ndarray, period: float, samples: int | None):
-    """Average the whole periods contained in (t, y) onto one period; returns (grid, mean, spread, n)."""
-    span = t[-1] - t[0]
-    step = np.median(np.diff(t))
-    n_periods = int(np.floor((span + step * 0.5) / period + 1e-9))
-    if n_periods < 1:
-        raise ValueError(
-            f"the samples span {span + step:.6g} s, less than one period of {period:.6g} s"
-        )
-    if samples is None:
-        samples = int(round(period / step))
-    samples = max(int(samples), 8)
-    phase = np.arange(samples) * (period / samples)
-    grid = t[0] + phase[None, :] + period * np.arange(n_periods)[:, None]
-    rows = np.interp(grid.ravel(), t, y).reshape(n_periods, samples)
-    mean = rows.mean(axis=0)
-    spread = rows.std(axis=0).max() if n_periods > 1 else 0.0
-    return phase, mean, float(spread), n_periods
-
-
-def _checked_record(t, y, y_name: str, caller: str, min_samples: int):
-    """Flattened float copies of a sampled record, checked: equal lengths, enough
-    samples, finite values and strictly increasing time (errors name array and index)."""
-    t = np.asarray(t, dtype=float).ravel()
-    y = np.asarray(y, dtype=float).ravel()
-    if t.size != y.size:
-        raise ValueError(f"t and {y_name} must have the same length, got {t.size} and {y.size}")
-    if t.size < min_samples:
-        raise ValueError(f"{caller} needs at least {min_samples} samples, got {t.size}")
-    for name, arr in (("t", t), (y_name, y)):
-        bad = ~np.isfinite(arr)
-        if bad.any():
-            i = int(np.argmax(bad))
-            raise ValueError(f"{name} has a non-finite value at index {i}: {float(arr[i])!r}")
-    steps = np.diff(t)
-    if (steps <= 0).any():
-        i = int(np.argmax(steps <= 0))
-        kind = "duplicate" if steps[i] == 0 else "decreasing"
-        raise ValueError(f"t must be strictly increasing; {kind} time stamp at index {i + 1}: {float(t[i + 1])!r}")
-    return t, y, steps
-
-
+# ---------------------------------------------------------------------------
+# Constructors from sampled records: the record handling (checks, whole-period
+# folding, voltage integration) lives in workbench.capture; these build the type.
+# ---------------------------------------------------------------------------
 def from_samples(t, b, *, freq: float | None = None, samples: int | None = None) -> FluxWaveform:
     """Waveform from sampled flux covering one or more periods.
 
@@ -921,27 +886,24 @@ def from_samples(t, b, *, freq: float | None = None, samples: int | None = None)
     freq : float, optional
         Fundamental frequency [Hz]. If given, the whole periods contained in the
         record are averaged into one period (on ``samples`` evenly spaced points,
-        default the record's own sample spacing). If omitted, the record is taken
-        to be exactly one period with the last sample one step before the period
-        repeats.
+        default the record's own sample spacing; see
+        :func:`workbench.capture.steady_state.fold_periods`). If omitted, the
+        record is taken to be exactly one period with the last sample one step
+        before the period repeats.
     samples : int, optional
         Samples per period of the averaged waveform (only with ``freq``).
     """
-    t, b, steps = _checked_record(t, b, "b", "from_samples", 2)
+    t, b, steps = checked_record(t, b, "b", "from_samples", 2)
     if freq is None:
         period = (t[-1] - t[0]) + steps[-1]
         return FluxWaveform(t - t[0], b, period)
     period = 1.0 / _as_positive(freq, "freq")
-    phase, mean, _, _ = _fold_periods(t, b, period, samples)
-    return FluxWaveform(phase, mean, period)
+    fold = fold_periods(t, b, period, samples=samples)
+    return FluxWaveform(fold.phase, fold.mean[0], period)
 
 
 def integrate_voltage(t, v, *, turns: float, area: float) -> np.ndarray:
-    """Flux density from a winding voltage over whole periods, offset and drift removed.
-
-    ``B(t) = (1 / (turns * area)) * integral (v - mean v) dt``, then the linear
-    drift over the record and the mean are removed (a voltage cannot tell a DC
-    flux bias, so the result is centred on zero).
+    """Flux density from a winding voltage over a record, offset and drift removed [T].
 
     Parameters
     ----------
@@ -957,25 +919,14 @@ def integrate_voltage(t, v, *, turns: float, area: float) -> np.ndarray:
     Returns
     -------
     ndarray
-        Flux density at the sample times [T].
+        Flux density at the sample times, centred on zero [T].
 
     Notes
     -----
-    Faraday's law for N turns on a core of effective area A_e:
-    v = N A_e dB/dt. The integral uses the trapezoidal rule.
+    Faraday's law v = N A_e dB/dt, integrated by
+    :func:`workbench.capture.flux.flux_density` (trapezoidal rule, mean voltage removed).
     """
-    turns = _as_positive(turns, "turns")
-    area = _as_positive(area, "area")
-    t = np.asarray(t, dtype=float)
-    v = np.asarray(v, dtype=float)
-    dt = np.diff(t)
-    # time-weighted mean voltage = probe offset / DC component
-    v_mean = np.sum(0.5 * (v[1:] + v[:-1]) * dt) / (t[-1] - t[0])
-    vv = v - v_mean
-    flux = np.concatenate(([0.0], np.cumsum(0.5 * (vv[1:] + vv[:-1]) * dt)))
-    flux -= flux[-1] * (t - t[0]) / (t[-1] - t[0])
-    b = flux / (turns * area)
-    return b - np.mean(b)
+    return flux_density(np.asarray(t, dtype=float), v, turns=turns, area=area)
 
 
 def from_voltage(t, v, *, turns: float, area: float, freq: float | None = None, samples: int | None = None) -> FluxWaveform:
@@ -1003,21 +954,20 @@ def from_voltage(t, v, *, turns: float, area: float, freq: float | None = None, 
        of the magnetic properties of magnetic powder cores and soft ferrites*
        (flux from the induced voltage of a sense winding).
     """
-    t, v, steps = _checked_record(t, v, "v", "from_voltage", 3)
+    t, v, steps = checked_record(t, v, "v", "from_voltage", 3)
+    turns = _as_positive(turns, "turns")
+    area = _as_positive(area, "area")
     if freq is not None:
         period = 1.0 / _as_positive(freq, "freq")
-        step = np.median(np.diff(t))
+        step = float(np.median(steps))
         n_periods = int(np.floor((t[-1] - t[0] + 0.5 * step) / period + 1e-9))
         if n_periods < 1:
             raise ValueError(f"the record ({t[-1] - t[0]:.6g} s) is shorter than one period ({period:.6g} s)")
         keep = t <= t[0] + n_periods * period + 0.5 * step
         t, v = t[keep], v[keep]
-        b = integrate_voltage(t, v, turns=turns, area=area)
-        return from_samples(t, b, freq=freq, samples=samples)
+        return from_samples(t, flux_density(t, v, turns=turns, area=area), freq=freq, samples=samples)
     # one period: close it on the first sample one step later, so that the
     # integral runs over the whole period including the wrap-around step
-    step = t[-1] - t[-2]
-    tc = np.append(t, t[-1] + step)
-    vc = np.append(v, v[0])
-    b = integrate_voltage(tc, vc, turns=turns, area=area)[:-1]
+    tc = np.append(t, t[-1] + steps[-1])
+    b = flux_density(tc, np.append(v, v[0]), turns=turns, area=area)[:-1]
     return from_samples(t, b - np.mean(b))

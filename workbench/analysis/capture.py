@@ -752,7 +752,7 @@ def analyse_record(
         x = np.concatenate(([0.0], np.cumsum(0.5 * (vv[1:] + vv[:-1]) * step)))
         detect_signal = x - np.polyval(np.polyfit(tg - tg[0], x, 1), tg - tg[0])
     try:
-        est = detect_period(tg, detect_signal)
+        est = detect_period(tg, detect_signal, noise=estimate_noise(detect_signal))
     except ValueError as exc:
         raise ValueError(f"{source}: {exc}") from None
     period = est.period
