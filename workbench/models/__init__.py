@@ -21,6 +21,7 @@ from workbench.models.steinmetz import (
     igse_coefficient,
     igse_loops,
     mean_abs_cos_power,
+    relaxation_factors,
     steinmetz,
     steinmetz_temperature_factor,
 )
@@ -46,6 +47,7 @@ __all__ = [
     "loop_abs_dbdt_integrals",
     "loop_path_integrals",
     "mean_abs_cos_power",
+    "relaxation_factors",
     "skin_depth",
     "skin_effect_factor",
     "steinmetz",

@@ -24,6 +24,7 @@ __all__ = [
     "i2gse",
     "I2gseResult",
     "flat_intervals",
+    "relaxation_factors",
     "steinmetz_temperature_factor",
 ]
 
@@ -262,8 +263,30 @@ def igse(waveform: FluxWaveform, k, alpha, beta, *, minor_loops: bool = True, th
     return igse_loops(waveform, k, alpha, beta, minor_loops=minor_loops, threshold=threshold).total
 
 
+def _run_medians(s: np.ndarray, w: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Weighted median of ``s[lo[r]:hi[r]]`` with weights ``w`` for each run r (runs are disjoint).
+
+    Where the cumulative weight lands exactly on half the run's weight, the mean of the
+    two middle values is returned (as :func:`numpy.median` does for equal weights).
+    """
+    size = hi - lo
+    first = np.cumsum(size) - size
+    last = first + size - 1
+    lab = np.repeat(np.arange(lo.size), size)
+    idx = np.arange(int(size.sum())) - np.repeat(first - lo, size)
+    order = np.lexsort((s[idx], lab))
+    sv = s[idx][order]
+    wv = w[idx][order]
+    cum = np.cumsum(wv)
+    before = np.where(first > 0, cum[first - 1], 0.0)
+    target = before + 0.5 * (cum[last] - before)
+    lower = np.clip(np.searchsorted(cum, target, side="left"), first, last)
+    upper = np.clip(np.searchsorted(cum, target, side="right"), first, last)
+    return 0.5 * (sv[lower] + sv[upper])
+
+
 def flat_intervals(waveform: FluxWaveform, rel_slope: float = 1e-3):
-    """Intervals where the flux stays constant (zero winding voltage).
+    """Intervals where the flux stays constant (zero winding voltage), with the ramps around them.
 
     Parameters
     ----------
@@ -275,14 +298,23 @@ def flat_intervals(waveform: FluxWaveform, rel_slope: float = 1e-3):
     Returns
     -------
     duration, slope_before, slope_after : ndarray
-        One entry per flat interval entered from a non-zero slope: its length [s]
-        and the slopes dB/dt just before and just after it [T/s].
+        One entry per flat interval: its length [s], the slope dB/dt of the ramp
+        that enters it and of the ramp that leaves it [T/s].
 
     Notes
     -----
     These are the intervals after which the i2GSE adds relaxation loss; runs of
     flat segments that wrap around the end of the period count as one interval.
     With the voltage v = N A dB/dt, a flat interval is one with v = 0.
+
+    The ramp entering a flat interval is the run of sloped segments just before
+    it that all go in one direction (rising or falling); the ramp leaving it is
+    the run just after it. Each ramp's slope is the time-weighted median of its
+    segment slopes: exact for a straight ramp, and a corner rounded over a few
+    samples (capture bandwidth, filtering) does not stand in for the ramp.
+    A rise, a fall and a dwell (discontinuous conduction) thus enters the dwell
+    with the slope of the fall and leaves it with the slope of the next rise; a
+    pause inside a rise (staircase) leaves it with the slope of the next step.
 
     References
     ----------
@@ -293,38 +325,36 @@ def flat_intervals(waveform: FluxWaveform, rel_slope: float = 1e-3):
     rel_slope = float(rel_slope)
     if not (np.isfinite(rel_slope) and 0 <= rel_slope < 1):
         raise ValueError(f"rel_slope must lie in [0, 1), got {rel_slope!r}")
+    empty = (np.zeros(0), np.zeros(0), np.zeros(0))
     s = waveform.dbdt()
     dt = waveform.segment_durations
     smax = np.max(np.abs(s))
     if smax == 0:
-        return np.zeros(0), np.zeros(0), np.zeros(0)
+        return empty
     flat = np.abs(s) <= rel_slope * smax
     if flat.all() or not flat.any():
-        return np.zeros(0), np.zeros(0), np.zeros(0)
-    # rotate so the sequence starts on a sloped segment: runs then never wrap
-    first = int(np.argmax(~flat))
-    flat = np.roll(flat, -first)
+        return empty
+    # direction of each segment (0 flat, +1 rising, -1 falling) and its maximal runs;
+    # rotated to start on a run boundary so that no run wraps around the period
+    g = np.where(flat, 0, np.sign(s)).astype(np.int8)
+    first = int(np.argmax(g != np.roll(g, 1)))  # a flat and a sloped run exist: some boundary does
+    g = np.roll(g, -first)
     s = np.roll(s, -first)
     dt = np.roll(dt, -first)
-    edges = np.diff(flat.astype(np.int8))
-    starts = np.flatnonzero(edges == 1) + 1
-    ends = np.flatnonzero(edges == -1) + 1
-    if ends.size < starts.size:  # last run reaches the end: it ends at the wrap
-        ends = np.append(ends, flat.size)
+    lo = np.flatnonzero(g != np.roll(g, 1))
+    hi = np.append(lo[1:], g.size)
+    flats = np.flatnonzero(g[lo] == 0)
     csum = np.concatenate(([0.0], np.cumsum(dt)))
-    duration = csum[ends] - csum[starts]
-    # the slope of a ramp is its median slope: a corner rounded by a capture's
-    # bandwidth or a filter would otherwise stand in for the whole ramp.
-    # Ramp r runs from the end of flat run r-1 to the start of flat run r; the
-    # first one wraps around the end of the period (hence the doubled array).
-    n = flat.size
-    s2 = np.concatenate((s, s))
-    ramp_lo = np.concatenate(([ends[-1]], ends[:-1]))
-    ramp_hi = np.concatenate(([starts[0] + n], starts[1:]))
-    slopes = np.array([np.median(s2[lo:hi]) for lo, hi in zip(ramp_lo, ramp_hi)])
-    before = slopes
-    after = np.roll(slopes, -1)
-    return duration, before, after
+    duration = csum[hi[flats]] - csum[lo[flats]]
+    # neighbours of a flat run are sloped (runs are maximal); a periodic waveform rises
+    # and falls, so there are at least three runs and the two neighbours differ
+    n_runs = lo.size
+    prev = (flats - 1) % n_runs
+    nxt = (flats + 1) % n_runs
+    ramps = np.union1d(prev, nxt)
+    slope = np.zeros(n_runs)
+    slope[ramps] = _run_medians(s, dt, lo[ramps], hi[ramps])
+    return duration, slope[prev], slope[nxt]
 
 
 @dataclass(frozen=True)
@@ -337,7 +367,54 @@ class I2gseResult:
     n_intervals: int
 
 
-def i2gse(waveform: FluxWaveform, k, alpha, beta, k_r, alpha_r, beta_r, tau, q_r=None, *, minor_loops: bool = True, threshold=None) -> I2gseResult:
+_RELAXATION_FIELDS = ("k_r", "alpha_r", "beta_r", "tau")
+
+
+def relaxation_factors(before, after, q_r=None) -> np.ndarray:
+    """Direction factor Q of the i2GSE relaxation term for each flat interval [-].
+
+    Parameters
+    ----------
+    before, after : array_like
+        Slopes dB/dt of the ramps entering and leaving each flat interval [T/s].
+    q_r : float, optional
+        Decay parameter [-]; None gives Q = 1 for every interval.
+
+    Returns
+    -------
+    ndarray
+        ``exp(-q_r |after / before|)`` where the flux goes on in the same direction
+        after the interval, 1 where it reverses [-].
+
+    Notes
+    -----
+    .. math:: Q_{r,l} = e^{-q_r |\\dot B(t_+) / \\dot B(t_-)|}
+
+    Our reading of [1]_, from memory: t_- is on the ramp entering the zero-voltage
+    interval and t_+ on the ramp leaving it, and the factor applies only when the
+    flux continues in the same direction (Q = 1 after a reversal). Another reading,
+    also from memory, takes t_+ just after the switching instant, inside the flat
+    interval, which makes Q = 1 for every flat interval. The two agree whenever the
+    flux reverses after the dwell (trapezoid, discontinuous conduction); they
+    differ for a pause inside a rise (staircase).
+
+    References
+    ----------
+    .. [1] J. Muehlethaler, J. Biela, J. W. Kolar, A. Ecklebe, "Improved core-loss
+       calculation for magnetic components employed in power electronic systems",
+       IEEE Trans. Power Electron. 27(2), 2012, pp. 964-973.
+    """
+    before = np.asarray(before, dtype=float)
+    after = np.asarray(after, dtype=float)
+    if q_r is None:
+        return np.ones(np.broadcast(before, after).shape)
+    same = np.sign(after) == np.sign(before)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.abs(after / before)
+    return np.where(same, np.exp(-float(q_r) * ratio), 1.0)
+
+
+def i2gse(waveform: FluxWaveform, k, alpha, beta, relaxation, *, minor_loops: bool = True, threshold=None) -> I2gseResult:
     """iGSE with relaxation losses after zero-voltage intervals (i2GSE).
 
     Parameters
@@ -346,14 +423,13 @@ def i2gse(waveform: FluxWaveform, k, alpha, beta, k_r, alpha_r, beta_r, tau, q_r
         One period of flux density B(t) [T].
     k, alpha, beta : float
         Steinmetz parameters [W/m^3, Hz, T].
-    k_r, alpha_r, beta_r : float
-        Relaxation parameters: energy density scale and exponents of |dB/dt| and
-        ΔB [J/m^3 / ((T/s)**alpha_r T**beta_r)].
-    tau : float
-        Relaxation time constant [s].
-    q_r : float, optional
-        Decay parameter for an interval after which the flux continues in the same
-        direction [-]; without it every interval relaxes fully (Q = 1).
+    relaxation : object
+        Relaxation parameters with attributes ``k_r`` (energy density scale
+        [J/m^3 / ((T/s)**alpha_r T**beta_r)]), ``alpha_r`` and ``beta_r``
+        (exponents of |dB/dt| and ΔB [-]), ``tau`` (time constant [s]) and
+        ``q_r`` (decay parameter for an interval after which the flux continues
+        in the same direction [-], or None for Q = 1 everywhere); a material's
+        ``relaxation`` (:class:`workbench.materials.RelaxationParams`) is one.
     minor_loops : bool, optional
         Minor-loop procedure for the iGSE part [-].
     threshold : float, optional
@@ -366,15 +442,16 @@ def i2gse(waveform: FluxWaveform, k, alpha, beta, k_r, alpha_r, beta_r, tau, q_r
     Notes
     -----
     For each zero-voltage interval l of duration t_l entered with slope
-    dB/dt(t-) and left with slope dB/dt(t+):
+    dB/dt(t-) and left with slope dB/dt(t+) (:func:`flat_intervals`):
+
+    .. math:: P_v = \\frac{1}{T}\\int_0^T k_i \\left|\\frac{dB}{dt}\\right|^{\\alpha}
+              (\\Delta B)^{\\beta-\\alpha} dt + \\sum_l Q_{r,l} P_{r,l}
 
     .. math:: P_{r,l} = \\frac{1}{T} k_r \\left|\\frac{dB}{dt}(t_-)\\right|^{\\alpha_r}
-              (\\Delta B)^{\\beta_r} (1 - e^{-t_l/\\tau}) Q_{r,l}
+              (\\Delta B)^{\\beta_r} (1 - e^{-t_l/\\tau})
 
-    with ΔB the waveform's peak-to-peak flux and
-    ``Q = exp(-q_r |dB/dt(t+) / dB/dt(t-)|)`` when the flux goes on in the same
-    direction after the interval, Q = 1 when it reverses (our reading of [1]_,
-    from memory).
+    with ΔB the waveform's peak-to-peak flux and Q from :func:`relaxation_factors`
+    (its form is our reading of [1]_, from memory).
 
     References
     ----------
@@ -382,19 +459,28 @@ def i2gse(waveform: FluxWaveform, k, alpha, beta, k_r, alpha_r, beta_r, tau, q_r
        calculation for magnetic components employed in power electronic systems",
        IEEE Trans. Power Electron. 27(2), 2012, pp. 964-973.
     """
-    base = igse(waveform, k, alpha, beta, minor_loops=minor_loops, threshold=threshold)
-    for name, value in (("k_r", k_r), ("alpha_r", alpha_r), ("beta_r", beta_r), ("tau", tau)):
-        if not np.isfinite(value) or value <= 0:
+    values = {}
+    for name in _RELAXATION_FIELDS + ("q_r",):
+        if not hasattr(relaxation, name):
+            raise ValueError(
+                f"relaxation must have the attributes k_r, alpha_r, beta_r, tau and q_r "
+                f"(e.g. a material's relaxation), got {type(relaxation).__name__} without {name!r}"
+            )
+        values[name] = getattr(relaxation, name)
+    for name in _RELAXATION_FIELDS:
+        value = values[name]
+        if isinstance(value, bool) or not isinstance(value, (int, float, np.floating, np.integer)) \
+                or not np.isfinite(value) or value <= 0:
             raise ValueError(f"{name} must be finite and positive, got {value!r}")
-    if q_r is not None and not (np.isfinite(q_r) and q_r >= 0):
+    q_r = values["q_r"]
+    if q_r is not None and (isinstance(q_r, bool) or not np.isfinite(q_r) or q_r < 0):
         raise ValueError(f"q_r must be finite and non-negative, got {q_r!r}")
+    base = igse(waveform, k, alpha, beta, minor_loops=minor_loops, threshold=threshold)
     duration, before, after = flat_intervals(waveform)
     if duration.size == 0:
         return I2gseResult(base, base, 0.0, 0)
-    q = np.ones_like(duration)
-    if q_r is not None:
-        same = np.sign(after) == np.sign(before)
-        q = np.where(same, np.exp(-float(q_r) * np.abs(after / before)), 1.0)
+    q = relaxation_factors(before, after, q_r)
+    k_r, alpha_r, beta_r, tau = (float(values[n]) for n in _RELAXATION_FIELDS)
     energy = k_r * np.abs(before) ** alpha_r * waveform.flux_pp**beta_r * (1.0 - np.exp(-duration / tau)) * q
     relax = float(np.sum(energy) / waveform.period)
     return I2gseResult(base + relax, base, relax, int(duration.size))
