@@ -17,6 +17,7 @@ lab: $(STAMP)
 	$(PY) -m workbench.launch
 
 test: $(STAMP)
+	$(PY) -m ruff check workbench tests benchmarks data
 	$(PY) -m pytest --nbval-lax --nbval-current-env --nbval-sanitize-with notebooks/sanitize.cfg -p no:cacheprovider
 
 bench: $(STAMP)

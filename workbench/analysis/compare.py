@@ -7,11 +7,12 @@ Two views that designers of converter magnetics use to shortlist materials:
   (a heat budget), against frequency. A larger product means fewer turns or a
   smaller core for the same volt-seconds at that frequency.
 
-Both come from the iGSE with the material's Steinmetz set, which at a fixed
-waveform shape scales as ``f**alpha * B_peak**beta``; the flux reachable at a
-loss density is therefore a closed form. Every point outside the range over
-which the Steinmetz set was fitted is flagged, and the flux is capped at the
-material's saturation flux density.
+Both come from the loss engine's laws of the shape (:func:`workbench.engine.loss_laws`):
+the loss at one flux is the engine's headline loss (iGSE, or i2GSE with relaxation),
+and the flux reachable at a loss density solves the same law for the flux scale
+(a closed form for the pure iGSE, which scales as ``f**alpha * B_peak**beta``). Every
+point outside the range over which the Steinmetz set was fitted is flagged, and the
+flux is capped at the material's saturation flux density.
 
 Pure numpy; no widgets, no plotting.
 """
@@ -22,9 +23,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from workbench import models
-from workbench.analysis.breakdown import steinmetz_k_at
-from workbench.analysis.shapes import make_shape
 from workbench.analysis.sweep import DEFAULT_FREQS
+from workbench.engine import Conditions, flux_scale_at_loss, loss_laws, resolve_material
+from workbench.shapes import ShapeSpec
 
 __all__ = [
     "MaterialCurve",
@@ -85,10 +86,8 @@ def igse_at_unit_flux(material, shape: str = "sine", *, duty: float = 0.5, tempe
        prediction of ferrite core loss with nonsinusoidal waveforms using only
        Steinmetz parameters", IEEE COMPEL 2002, pp. 36-41.
     """
-    st = material.steinmetz
-    k = steinmetz_k_at(material, temperature)
-    w = make_shape(shape, b_peak=1.0, freq=1.0, duty=duty)
-    return float(models.igse(w, k, st.alpha, st.beta))
+    laws = loss_laws(ShapeSpec(shape, 1.0, 1.0, duty), material, Conditions(temperature=temperature))
+    return float(laws.igse_ref)
 
 
 @dataclass(frozen=True)
@@ -126,6 +125,8 @@ class MaterialCurve:
         Saturation flux density [T] and density [kg/m^3].
     freq_range, b_range : tuple of float
         Fitted ranges of the Steinmetz set [Hz], [T].
+    loss_model : str
+        "iGSE" or "i2GSE", as the engine chose for the shape.
     """
 
     material: str
@@ -145,6 +146,10 @@ class MaterialCurve:
     density: float
     freq_range: tuple[float, float]
     b_range: tuple[float, float]
+    loss_model: str = "iGSE"
+
+    def __repr__(self) -> str:
+        return f"MaterialCurve({self.material}, {self.loss.size} points, {self.loss_model})"
 
 
 @dataclass(frozen=True)
@@ -179,6 +184,12 @@ class MaterialComparison:
     temperature: float | None
     curves: tuple[MaterialCurve, ...]
     notes: tuple[str, ...]
+    warnings: tuple[str, ...] = ()
+
+    def __repr__(self) -> str:
+        names = ", ".join(c.material for c in self.curves)
+        return (f"MaterialComparison({self.shape}, B_peak {self.b_peak:.4g} T, {self.loss_density:.4g} W/m^3, "
+                f"{self.freq.size} frequencies: {names}; {len(self.warnings)} warning(s))")
 
     def curve(self, name: str) -> MaterialCurve:
         """The curve of one material by name."""
@@ -244,6 +255,7 @@ class MaterialComparison:
                 for c in self.curves
             ],
             "notes": list(self.notes),
+            "warnings": list(self.warnings),
         }
 
 
@@ -281,15 +293,16 @@ def compare_materials(materials, shape: str = "sine", *, b_peak: float, loss_den
     .. math:: \\hat B(f) = \\left(\\frac{P_v}{P_1 f^{\\alpha}}\\right)^{1/\\beta}
 
     capped at ``b_sat``; the figure of merit is ``f * min(B, b_sat)``. For a sine
-    ``P1 = k`` and this is the Steinmetz equation solved for B.
-    The i2GSE relaxation term is not included (it does not scale as B**beta).
+    ``P1 = k`` and this is the Steinmetz equation solved for B. Where the material has
+    relaxation data (i2GSE) the loss is not a single power of B and the flux is found by
+    bisection on the engine's law.
 
     References
     ----------
     .. [1] K. Venkatachalam, C. R. Sullivan, T. Abdallah, H. Tacca, IEEE COMPEL 2002.
     .. [2] C. P. Steinmetz, "On the law of hysteresis", Trans. AIEE 9, 1892.
     """
-    mats = list(materials)
+    mats = [resolve_material(m) for m in materials]
     if not mats:
         raise ValueError("materials must name at least one material, got an empty selection")
     names = [m.name for m in mats]
@@ -301,11 +314,13 @@ def compare_materials(materials, shape: str = "sine", *, b_peak: float, loss_den
     f = _freq_array(freqs)
     curves = []
     notes = []
+    warnings = []
     for m in mats:
         st = m.steinmetz
-        p1 = igse_at_unit_flux(m, shape, duty=duty, temperature=temperature)
-        loss = p1 * f**st.alpha * b**st.beta
-        b_loss = (pv / (p1 * f**st.alpha)) ** (1.0 / st.beta)
+        laws = loss_laws(ShapeSpec(shape, b, 1.0, duty), m, Conditions(temperature=temperature))
+        warnings += [f"{m.name}: {w}" if not w.startswith(m.name) else w for w in laws.warnings]
+        loss = laws.parts(f)["total"]
+        b_loss = b * flux_scale_at_loss(laws, f, pv)
         b_use = np.minimum(b_loss, m.b_sat)
         f_lo, f_hi = st.freq_range
         b_lo, b_hi = st.b_range
@@ -324,11 +339,12 @@ def compare_materials(materials, shape: str = "sine", *, b_peak: float, loss_den
             material=m.name, family=m.family, loss=loss, loss_w_kg=loss / m.density,
             b_loss_limited=b_loss, b_usable=b_use, fb=f * b_use, saturation_limited=b_loss > m.b_sat,
             loss_valid=loss_valid, fb_valid=fb_valid, alpha=float(st.alpha), beta=float(st.beta),
-            p_unit=p1, b_sat=float(m.b_sat), density=float(m.density),
-            freq_range=(float(f_lo), float(f_hi)), b_range=(float(b_lo), float(b_hi)),
+            p_unit=float(laws.igse_ref / b**laws.beta), b_sat=float(m.b_sat), density=float(m.density),
+            freq_range=(float(f_lo), float(f_hi)), b_range=(float(b_lo), float(b_hi)), loss_model=laws.model_name,
         ))
     return MaterialComparison(freq=f, shape=shape, duty=float(duty), b_peak=b, loss_density=pv,
-                              temperature=temperature, curves=tuple(curves), notes=tuple(notes))
+                              temperature=temperature, curves=tuple(curves), notes=tuple(notes),
+                              warnings=tuple(warnings))
 
 
 def skin_knee_frequency(resistivity: float, thickness: float, rel_permeability: float) -> float:

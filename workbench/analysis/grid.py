@@ -7,9 +7,9 @@ returns the whole labelled array (:class:`GridResult`) or reduces each chunk as 
 is made: the minimum or maximum over some dimensions (with the coordinates where
 it is reached), or a callback that sees every chunk.
 
-Each part follows the same per-shape laws as :func:`workbench.analysis.sweep_frequency`
-(the shape is computed once per duty and flux, then scaled in frequency), so a grid
-point equals the sweep value at the same settings.
+Each part follows the loss engine's laws of the shape (:func:`workbench.engine.loss_laws`,
+computed once per shape and duty, then scaled in frequency, flux and thickness), so a
+grid point equals the engine's loss and the sweep value at the same settings.
 """
 from __future__ import annotations
 
@@ -18,8 +18,8 @@ from typing import Callable
 
 import numpy as np
 
-from workbench.analysis.shapes import SHAPES
-from workbench.analysis.sweep import shape_laws
+from workbench.engine import Conditions, loss_laws, resolve_material
+from workbench.shapes import SHAPES, ShapeSpec
 
 __all__ = ["GRID_PARTS", "GridResult", "grid_sweep", "DEFAULT_CHUNK_POINTS", "MAX_MATERIALISED_POINTS"]
 
@@ -108,44 +108,16 @@ def _axis(value, name, *, positive=True, upper=None):
     return arr
 
 
-def _classical_unit(unit, f, rho, d, mu_r, chunk_points):
-    """Classical part at 1 T peak on (f, d), the harmonic sum done in bounded pieces."""
-    if mu_r is None:
-        return unit.classical(f[:, None], rho, d[None, :], None)
-    out = np.empty((f.size, d.size))
-    step = max(1, chunk_points // max(1, unit.harmonic_numbers.size))
-    for j, x in enumerate(d):
-        for i in range(0, f.size, step):
-            out[i:i + step, j] = unit.classical(f[i:i + step], rho, float(x), mu_r)
-    return out
-
-
-def _block_parts(laws_b, unit, f, b, parts, rho, d, mu_r, chunk_points):
+def _block_parts(laws, f, b, parts, rho, d):
     """All requested parts on one block: f (nf,), the flux values b (nb,), thicknesses d (nd,)."""
     nf, nb, nd = f.size, b.size, d.size
-    out = {}
-    need_classical = "classical" in parts or "separation_total" in parts
-    if need_classical:
-        c_unit = _classical_unit(unit, f, rho, d, mu_r, chunk_points)
-        classical = c_unit[:, None, :] * (b * b)[None, :, None]
-    if "total" in parts:
-        tot = np.stack([lw.igse_total(f) for lw in laws_b], axis=1)
-        out["total"] = np.broadcast_to(tot[:, :, None], (nf, nb, nd))
-    has_sep = laws_b[0].hyst_1hz is not None
-    if "hysteresis" in parts or "separation_total" in parts:
-        hyst = (np.array([lw.hyst_1hz for lw in laws_b])[None, :] * f[:, None]) if has_sep else None
-    if "excess" in parts or "separation_total" in parts:
-        exc = (np.array([lw.excess_1hz for lw in laws_b])[None, :] * f[:, None] ** 1.5) if has_sep else None
+    p = laws.parts(f[:, None, None], (b / laws.b_peak)[None, :, None], thickness=d[None, None, :], resistivity=rho)
     nan = np.full((nf, nb, nd), np.nan)
-    if "hysteresis" in parts:
-        out["hysteresis"] = np.broadcast_to(hyst[:, :, None], (nf, nb, nd)) if has_sep else nan
-    if "excess" in parts:
-        out["excess"] = np.broadcast_to(exc[:, :, None], (nf, nb, nd)) if has_sep else nan
-    if "classical" in parts:
-        out["classical"] = classical
-    if "separation_total" in parts:
-        out["separation_total"] = (hyst[:, :, None] + exc[:, :, None] + classical) if has_sep else nan
-    return np.stack([out[p] for p in parts])
+    out = []
+    for name in parts:
+        v = p[name]
+        out.append(nan if v is None else np.broadcast_to(v, (nf, nb, nd)))
+    return np.stack(out)
 
 
 def grid_sweep(material, *, freq, b_peak, duty=0.5, thickness=None, shape="sine", parts=GRID_PARTS,
@@ -195,11 +167,11 @@ def grid_sweep(material, *, freq, b_peak, duty=0.5, thickness=None, shape="sine"
 
     Notes
     -----
-    For each (shape, duty, B_peak) the shape is computed once and scaled in f
-    (iGSE total as f**alpha plus relaxation, hysteresis as f, excess as f**1.5,
-    classical harmonic by harmonic with the skin effect). The classical part is
-    proportional to B**2, so it is computed once per (shape, duty) at 1 T and
-    scaled:
+    For each (shape, duty) the engine's laws are computed once and scaled in f and
+    flux (iGSE total as f**alpha B**beta plus relaxation, hysteresis as f, excess as
+    (f B)**1.5, classical harmonic by harmonic with the skin effect and as B**2); a
+    thickness other than the material's replaces the classical part of the headline
+    total as in :func:`workbench.engine.core_loss`:
 
     .. math:: P_{cl}(f, \\hat B, d) = \\hat B^2 \\sum_n \\frac{\\pi^2 d^2 (n f)^2 b_n^2}{6\\rho}
               F\\!\\left(\\frac{d}{\\delta(n f)}\\right)
@@ -215,10 +187,9 @@ def grid_sweep(material, *, freq, b_peak, duty=0.5, thickness=None, shape="sine"
     f_ax = _axis(freq, "freq")
     b_ax = _axis(b_peak, "b_peak")
     duty_ax = _axis(duty, "duty", upper=1.0)
+    material = resolve_material(material)
     d_ax = _axis(material.thickness if thickness is None else thickness, "thickness")
-    rho = material.resistivity if resistivity is None else float(resistivity)
-    if not np.isfinite(rho) or rho <= 0:
-        raise ValueError(f"resistivity must be finite and positive [ohm m], got {resistivity!r}")
+    rho = float(_axis(material.resistivity if resistivity is None else resistivity, "resistivity")[0])
     shapes = [shape] if isinstance(shape, str) else list(shape)
     for s in shapes:
         if s not in SHAPES:
@@ -232,7 +203,6 @@ def grid_sweep(material, *, freq, b_peak, duty=0.5, thickness=None, shape="sine"
     chunk_points = int(chunk_points)
     if chunk_points < 1:
         raise ValueError(f"chunk_points must be a positive integer, got {chunk_points!r}")
-    mu_r = material.rel_permeability if skin_effect else None
 
     multi_shape = not isinstance(shape, str)
     dims = (("shape",) if multi_shape else ()) + ("freq", "b_peak", "duty", "thickness")
@@ -274,16 +244,15 @@ def grid_sweep(material, *, freq, b_peak, duty=0.5, thickness=None, shape="sine"
     f_len = min(f_ax.size, max(1, chunk_points // (d_len * b_len)))
     for si, sname in enumerate(shapes):
         for di, du in enumerate(duty_ax):
-            unit = shape_laws(material, sname, b_peak=1.0, duty=float(du), temperature=temperature)
+            laws = loss_laws(ShapeSpec(sname, 1.0, 1.0, float(du)), material,
+                             Conditions(temperature=temperature, resistivity=rho, skin_effect=skin_effect))
             for b0 in range(0, b_ax.size, b_len):
                 bsl = slice(b0, min(b0 + b_len, b_ax.size))
-                laws_b = [shape_laws(material, sname, b_peak=float(x), duty=float(du), temperature=temperature)
-                          for x in b_ax[bsl]]
                 for f0 in range(0, f_ax.size, f_len):
                     fsl = slice(f0, min(f0 + f_len, f_ax.size))
                     for t0 in range(0, nd, d_len):
                         tsl = slice(t0, min(t0 + d_len, nd))
-                        block = _block_parts(laws_b, unit, f_ax[fsl], b_ax[bsl], parts, rho, d_ax[tsl], mu_r, chunk_points)
+                        block = _block_parts(laws, f_ax[fsl], b_ax[bsl], parts, rho, d_ax[tsl])
                         block = block[:, :, :, None, :]  # insert the duty axis
                         if multi_shape:
                             block = block[:, None]

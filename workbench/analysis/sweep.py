@@ -1,163 +1,26 @@
-"""Loss parts against frequency for a fixed waveform shape, and the eddy/hysteresis crossover.
+"""Loss parts against frequency for a fixed flux shape, and the eddy/hysteresis crossover.
 
-A shape played at another frequency keeps its flux levels and stretches in time,
-so each part follows its own law in f: the iGSE total goes as f**alpha, the
-hysteresis part as f, the excess part as f**1.5 and the classical part as f**2
-(bent down by the skin effect harmonic by harmonic). A sweep therefore computes
-the shape once and scales it, which is exact and fast.
+A shape played at another frequency keeps its flux levels and stretches in time, so
+each part follows its own law in f (iGSE total ~ f**alpha, hysteresis ~ f, excess ~
+f**1.5, classical ~ f**2 bent down by the skin effect harmonic by harmonic). The laws
+come from the loss engine (:func:`workbench.engine.loss_laws`), so a sweep point equals
+the engine's loss at that frequency. The shape is a named shape or any one period of
+flux, a captured one included.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
-from workbench import models
-from workbench.analysis.breakdown import steinmetz_k_at
-from workbench.analysis.shapes import make_shape
+from workbench.engine import Conditions, LossLaws, core_loss_sweep, loss_laws
+from workbench.shapes import ShapeSpec
+from workbench.waveforms import FluxWaveform
 
-__all__ = ["FrequencySweep", "CrossoverResult", "ShapeLaws", "shape_laws", "sweep_frequency", "crossover_frequency", "DEFAULT_FREQS"]
+__all__ = ["FrequencySweep", "CrossoverResult", "sweep_frequency", "crossover_frequency", "DEFAULT_FREQS"]
 
 #: Default sweep: 400 points from 10 Hz to 1 MHz.
 DEFAULT_FREQS = np.geomspace(10.0, 1e6, 400)
-#: Harmonics kept for the classical part with skin effect.
-N_HARMONICS = 256
-
-
-@dataclass(frozen=True)
-class ShapeLaws:
-    """Coefficients of each loss part of one shape, at 1 Hz, for scaling in frequency.
-
-    ``total(f) = igse_1hz * f**alpha + relaxation(f)``, ``hyst(f) = hyst_1hz * f``,
-    ``excess(f) = excess_1hz * f**1.5``; the classical part is the harmonic sum
-    ``sum_n classical_eddy(n f, amp_n)``.
-    """
-
-    alpha: float
-    igse_1hz: float
-    hyst_1hz: float | None
-    excess_1hz: float | None
-    harmonic_numbers: np.ndarray
-    harmonic_amplitudes: np.ndarray
-    classical_1hz_thin: float
-    relax_terms: tuple  # (k_r, alpha_r, beta_r, tau, slopes_1hz, durations_1hz, q, flux_pp) or ()
-
-    def igse_total(self, freq):
-        """Steinmetz-family total (iGSE plus any i2GSE relaxation) [W/m^3].
-
-        Parameters
-        ----------
-        freq : array_like
-            Frequencies [Hz].
-        """
-        f = np.asarray(freq, dtype=float)
-        out = self.igse_1hz * f**self.alpha
-        if self.relax_terms:
-            k_r, a_r, b_r, tau, slopes, durations, q, pp = self.relax_terms
-            fcol = f[..., None]
-            e = k_r * np.abs(slopes * fcol) ** a_r * pp**b_r * (1 - np.exp(-durations / (fcol * tau))) * q
-            out = out + fcol[..., 0] * e.sum(axis=-1)
-        return out
-
-    def relaxation(self, freq):
-        """i2GSE relaxation part of the total [W/m^3] (0 without relaxation data).
-
-        Parameters
-        ----------
-        freq : array_like
-            Frequencies [Hz].
-        """
-        return self.igse_total(freq) - self.igse_1hz * np.asarray(freq, dtype=float) ** self.alpha
-
-    def classical(self, freq, resistivity, thickness, rel_permeability=None):
-        """Classical eddy-current part [W/m^3], with the skin effect per harmonic when a permeability is given.
-
-        Parameters
-        ----------
-        freq : array_like
-            Frequencies [Hz].
-        resistivity : float
-            Resistivity [ohm m].
-        thickness : float
-            Lamination thickness [m].
-        rel_permeability : float, optional
-            Relative permeability [-]; None leaves out the skin effect.
-        """
-        f = np.asarray(freq, dtype=float)
-        if rel_permeability is None:
-            return self.classical_1hz_thin * (thickness**2 / (12 * resistivity)) * f**2
-        fn = f[..., None] * self.harmonic_numbers
-        p = models.classical_eddy(fn, self.harmonic_amplitudes, resistivity, thickness, rel_permeability)
-        return np.sum(p, axis=-1)
-
-    def hysteresis(self, freq):
-        """Hysteresis part [W/m^3], or None without a separation set.
-
-        Parameters
-        ----------
-        freq : array_like
-            Frequencies [Hz].
-        """
-        return None if self.hyst_1hz is None else self.hyst_1hz * np.asarray(freq, dtype=float)
-
-    def excess(self, freq):
-        """Excess part [W/m^3], or None without a separation set.
-
-        Parameters
-        ----------
-        freq : array_like
-            Frequencies [Hz].
-        """
-        return None if self.excess_1hz is None else self.excess_1hz * np.asarray(freq, dtype=float) ** 1.5
-
-
-def shape_laws(material, shape: str = "sine", *, b_peak: float, duty: float = 0.5, temperature=None) -> ShapeLaws:
-    """Per-part frequency laws of one waveform shape on one material (see :class:`ShapeLaws`).
-
-    Parameters
-    ----------
-    material : workbench.materials.Material
-        Material data [SI units].
-    shape : {"sine", "triangle", "trapezoid"}
-        Waveform shape.
-    b_peak : float
-        Peak flux density [T].
-    duty : float
-        Duty cycle of the shape [-].
-    temperature : float, optional
-        Core temperature [degC] for the Steinmetz coefficient.
-
-    Returns
-    -------
-    ShapeLaws
-        Coefficients at 1 Hz; each part scales with its own power of f.
-    """
-    w = make_shape(shape, b_peak=b_peak, freq=1.0, duty=duty)
-    st = material.steinmetz
-    k = steinmetz_k_at(material, temperature)
-    igse_1hz = models.igse(w, k, st.alpha, st.beta)
-    sep = material.separation
-    hyst = excess = None
-    if sep is not None:
-        hyst = models.hysteresis_loss_waveform(w, sep.k_hyst, sep.beta_hyst)
-        excess = models.excess_loss_waveform(w, sep.k_excess)
-    spec = w.spectrum(N_HARMONICS, samples=4 * N_HARMONICS)
-    n = np.arange(1, spec.amplitude.size)
-    amp = spec.amplitude[1:]
-    keep = amp > 1e-9 * amp.max()
-    # mean (dB/dt)^2 at 1 Hz, exact for the piecewise-linear shape
-    thin = float(np.sum(w.segment_increments**2 / w.segment_durations) / w.period)
-    relax = ()
-    rx = getattr(material, "relaxation", None)
-    if rx is not None:
-        durations, before, after = models.flat_intervals(w)
-        if durations.size:
-            q = np.ones_like(durations)
-            if rx.q_r is not None:
-                same = np.sign(after) == np.sign(before)
-                q = np.where(same, np.exp(-rx.q_r * np.abs(after / before)), 1.0)
-            relax = (rx.k_r, rx.alpha_r, rx.beta_r, rx.tau, before, durations, q, w.flux_pp)
-    return ShapeLaws(st.alpha, igse_1hz, hyst, excess, n[keep].astype(float), amp[keep], thin, relax)
 
 
 @dataclass(frozen=True)
@@ -179,6 +42,8 @@ class CrossoverResult:
     hysteresis_from : str
         "separation" (the material's hysteresis term) or "steinmetz" (the
         iGSE total stands in for hysteresis where no separation set exists).
+    warnings : tuple of str
+        Things to check (a crossover outside the material's valid range).
     """
 
     freq: float | None
@@ -187,30 +52,36 @@ class CrossoverResult:
     f_range: tuple[float, float]
     eddy_includes_excess: bool
     hysteresis_from: str
+    warnings: tuple[str, ...] = ()
 
 
-def _crossover(laws: ShapeLaws, material, rho, d, mu_r, include_excess, f_range) -> CrossoverResult:
+def _crossover(laws: LossLaws, include_excess: bool, f_range) -> CrossoverResult:
     f_lo, f_hi = float(f_range[0]), float(f_range[1])
     if not (np.isfinite(f_lo) and np.isfinite(f_hi) and 0 < f_lo < f_hi):
         raise ValueError(f"f_range must be two increasing positive frequencies, got {f_range!r}")
-    eddy_name = "classical + excess eddy loss" if include_excess and laws.excess_1hz is not None else "classical eddy loss"
-    use_sep = laws.hyst_1hz is not None
+    name = laws.material.name
+    warnings: list[str] = []
+    if laws.thickness is None:
+        return CrossoverResult(None, "none", f"{name}: no lamination thickness and resistivity, so no classical eddy part to compare",
+                               (f_lo, f_hi), include_excess, "steinmetz", ())
+    with_excess = include_excess and laws.has_separation
+    eddy_name = "classical + excess eddy loss" if with_excess else "classical eddy loss"
+    use_sep = laws.has_separation
     hyst_from = "separation" if use_sep else "steinmetz"
     hyst_name = "hysteresis loss" if use_sep else "the Steinmetz loss (no separation set, taken as hysteresis-like)"
 
     def hyst(f):
-        return laws.hysteresis(f) if use_sep else laws.igse_total(f)
+        p = laws.parts(f)
+        return p["hysteresis"] if use_sep else p["total"]
 
     def eddy(f):
-        e = laws.classical(f, rho, d, mu_r)
-        if include_excess and laws.excess_1hz is not None:
-            e = e + laws.excess(f)
-        return e
+        p = laws.parts(f)
+        return p["classical"] + p["excess"] if with_excess else p["classical"]
 
-    closed = mu_r is None and use_sep and not (include_excess and laws.excess_1hz is not None)
+    closed = laws.rel_permeability is None and use_sep and not with_excess
     if closed:
-        c2 = laws.classical_1hz_thin * d**2 / (12 * rho)
-        fx = laws.hyst_1hz / c2
+        # P_h = a f and P_cl = c f^2: they meet at f = a / c
+        fx = laws.ref_freq * laws.hyst_ref / float(laws.parts(np.array([laws.ref_freq]))["classical"][0])
         method = "closed form"
         found = f_lo <= fx <= f_hi
     else:
@@ -223,45 +94,52 @@ def _crossover(laws: ShapeLaws, material, rho, d, mu_r, include_excess, f_range)
             from scipy.optimize import brentq  # imported here: keeps scipy.optimize off the import path
 
             i = int(sign[0])
-            fx = float(np.exp(brentq(lambda lf: float(np.log(eddy(np.exp(lf))) - np.log(hyst(np.exp(lf)))),
-                                     np.log(grid[i]), np.log(grid[i + 1]), xtol=1e-12, rtol=1e-10)))
+            fx = float(np.exp(brentq(lambda lf: float(np.log(eddy(np.exp([lf])))[0] - np.log(hyst(np.exp([lf])))[0]),
+                                     np.log(grid[i]), np.log(grid[i + 1]), xtol=1e-13, rtol=1e-12)))
         elif g[0] > 0:
-            fx = None
-            return CrossoverResult(None, method, f"{eddy_name} already exceeds {hyst_name} at {f_lo:.4g} Hz for {material.name}; no crossover in {f_lo:.4g}-{f_hi:.4g} Hz",
-                                   (f_lo, f_hi), include_excess, hyst_from)
+            return CrossoverResult(None, method, f"{eddy_name} already exceeds {hyst_name} at {f_lo:.4g} Hz for {name}; no crossover in {f_lo:.4g}-{f_hi:.4g} Hz",
+                                   (f_lo, f_hi), include_excess, hyst_from, ())
         else:
-            return CrossoverResult(None, method, f"{eddy_name} stays below {hyst_name} up to {f_hi:.4g} Hz for {material.name}; no crossover in {f_lo:.4g}-{f_hi:.4g} Hz",
-                                   (f_lo, f_hi), include_excess, hyst_from)
+            return CrossoverResult(None, method, f"{eddy_name} stays below {hyst_name} up to {f_hi:.4g} Hz for {name}; no crossover in {f_lo:.4g}-{f_hi:.4g} Hz",
+                                   (f_lo, f_hi), include_excess, hyst_from, ())
     if not found:
         side = "below" if fx > f_hi else "above"
-        return CrossoverResult(None, method, f"{eddy_name} stays {side} {hyst_name} over {f_lo:.4g}-{f_hi:.4g} Hz for {material.name} (the curves meet at {fx:.4g} Hz, outside the range)",
-                               (f_lo, f_hi), include_excess, hyst_from)
-    return CrossoverResult(float(fx), method, f"{eddy_name} overtakes {hyst_name} above {fx:.4g} Hz for {material.name}",
-                           (f_lo, f_hi), include_excess, hyst_from)
+        return CrossoverResult(None, method, f"{eddy_name} stays {side} {hyst_name} over {f_lo:.4g}-{f_hi:.4g} Hz for {name} (the curves meet at {fx:.4g} Hz, outside the range)",
+                               (f_lo, f_hi), include_excess, hyst_from, ())
+    st = getattr(laws.material, "steinmetz", None)
+    if st is not None:
+        lo, hi = st.freq_range
+        if not lo <= fx <= hi:
+            warnings.append(f"the crossover at {fx:.4g} Hz lies outside the valid frequency range of {name}'s data "
+                            f"({lo:.4g}-{hi:.4g} Hz): the curves there are extrapolated, treat it as an indication only")
+    return CrossoverResult(float(fx), method, f"{eddy_name} overtakes {hyst_name} above {fx:.4g} Hz for {name}",
+                           (f_lo, f_hi), include_excess, hyst_from, tuple(warnings))
 
 
-def _resolve(material, thickness, resistivity, skin_effect):
-    d = material.thickness if thickness is None else float(thickness)
-    rho = material.resistivity if resistivity is None else float(resistivity)
-    for name, value in (("thickness", d), ("resistivity", rho)):
-        if not np.isfinite(value) or value <= 0:
-            raise ValueError(f"{name} must be finite and positive, got {value!r}")
-    mu_r = material.rel_permeability if skin_effect else None
-    return d, rho, mu_r
+def _shape(shape, b_peak, duty):
+    """A ShapeSpec from a shape name (at its reference 1 Hz), or the waveform itself."""
+    if isinstance(shape, (FluxWaveform, ShapeSpec)):
+        if b_peak is not None:
+            raise ValueError("b_peak is given by the waveform itself; pass b_peak only with a shape name")
+        return shape
+    if b_peak is None:
+        raise ValueError(f"b_peak [T] is needed with the shape name {shape!r}")
+    return ShapeSpec(shape, float(b_peak), 1.0, float(duty))
 
 
-def crossover_frequency(material, *, b_peak: float, shape: str = "sine", duty: float = 0.5, thickness=None, resistivity=None,
-                        skin_effect: bool = True, include_excess: bool = False, temperature=None, f_range=(1.0, 1e8)) -> CrossoverResult:
+def crossover_frequency(material, *, b_peak: float | None = None, shape="sine", duty: float = 0.5, thickness=None,
+                        resistivity=None, skin_effect: bool = True, include_excess: bool = False, temperature=None,
+                        f_range=(1.0, 1e8)) -> CrossoverResult:
     """Frequency at which eddy-current loss overtakes hysteresis loss.
 
     Parameters
     ----------
-    material : workbench.materials.Material
-        Material data.
-    b_peak : float
-        Peak flux density [T].
-    shape : {"sine", "triangle", "trapezoid"}
-        Waveform shape.
+    material : workbench.materials.Material or str
+        Material data or its library name.
+    b_peak : float, optional
+        Peak flux density [T] (with a shape name).
+    shape : {"sine", "triangle", "trapezoid"} or FluxWaveform
+        Waveform shape, or one period of flux (a captured one) whose flux levels are kept.
     duty : float
         Duty cycle of the shape [-].
     thickness, resistivity : float, optional
@@ -286,17 +164,23 @@ def crossover_frequency(material, *, b_peak: float, shape: str = "sine", duty: f
 
     .. math:: f_x = \\frac{6 \\rho k_h \\hat B^{\\beta_h - 2}}{\\pi^2 d^2}
 
-    and in general ``f_x = P_h(1 Hz) / P_cl(1 Hz)``. With the skin effect or the
+    and in general ``f_x = P_h(f_0) f_0 / P_cl(f_0)``. With the skin effect or the
     excess term, a bracketed root find (Brent) on log f.
 
     References
     ----------
     .. [1] G. Bertotti, "General properties of power losses in soft ferromagnetic
        materials", IEEE Trans. Magn. 24(1), 1988.
+
+    Examples
+    --------
+    >>> r = crossover_frequency("M400-50A", b_peak=1.5, skin_effect=False)
+    >>> r.method, round(r.freq, 1)
+    ('closed form', 132.4)
     """
-    d, rho, mu_r = _resolve(material, thickness, resistivity, skin_effect)
-    laws = shape_laws(material, shape, b_peak=b_peak, duty=duty, temperature=temperature)
-    return _crossover(laws, material, rho, d, mu_r, include_excess, f_range)
+    cond = Conditions(temperature=temperature, thickness=thickness, resistivity=resistivity, skin_effect=skin_effect)
+    laws = loss_laws(_shape(shape, b_peak, duty), material, cond)
+    return _crossover(laws, include_excess, f_range)
 
 
 @dataclass(frozen=True)
@@ -304,12 +188,13 @@ class FrequencySweep:
     """Loss parts of one shape on one material across frequency. Arrays in W/m^3.
 
     ``hysteresis``, ``excess`` and ``separation_total`` are None when the
-    material has no separation set.
+    material has no separation set. ``shape`` is the shape name, or "waveform" for
+    a given period of flux (then ``duty`` is None).
     """
 
     material: str
     shape: str
-    duty: float
+    duty: float | None
     b_peak: float
     thickness: float
     resistivity: float
@@ -322,6 +207,16 @@ class FrequencySweep:
     separation_total: np.ndarray | None
     crossover: CrossoverResult
     valid_freq_range: tuple[float, float]
+    loss_model: str = "iGSE"
+    relaxation: np.ndarray | None = field(default=None, repr=False)
+    temperature: float | None = None
+    warnings: tuple[str, ...] = ()
+
+    def __repr__(self) -> str:
+        cx = "none" if self.crossover.freq is None else f"{self.crossover.freq:.4g} Hz"
+        return (f"FrequencySweep({self.material}, {self.shape}, B_peak {self.b_peak:.4g} T, {self.freq.size} points "
+                f"{self.freq[0]:.4g}-{self.freq[-1]:.4g} Hz, {self.loss_model}, crossover {cx}, "
+                f"{len(self.warnings)} warning(s))")
 
     def energy_per_cycle(self, values: np.ndarray) -> np.ndarray:
         """Loss per cycle P/f [J/m^3] of one of the loss arrays.
@@ -333,25 +228,51 @@ class FrequencySweep:
         """
         return values / self.freq
 
+    def specific(self, values):
+        """Loss per mass [W/kg] of one of the loss arrays (None passes through).
+
+        Parameters
+        ----------
+        values : ndarray or None
+            Loss densities at ``self.freq`` [W/m^3].
+        """
+        return None if values is None or self.density is None else values / self.density
+
     @property
     def extrapolated(self) -> np.ndarray:
         """True where the frequency lies outside the material's Steinmetz range."""
         lo, hi = self.valid_freq_range
         return (self.freq < lo) | (self.freq > hi)
 
+    def to_dict(self) -> dict:
+        """Plain dict with SI-suffixed keys, ready for JSON."""
+        def lst(a):
+            return None if a is None else [float(x) for x in a]
 
-def sweep_frequency(material, shape: str = "sine", *, b_peak: float, duty: float = 0.5, freqs=None, thickness=None, resistivity=None,
-                    skin_effect: bool = True, include_excess: bool = False, temperature=None) -> FrequencySweep:
-    """Loss parts against frequency for one shape, flux and lamination.
+        return {
+            "material": self.material, "shape": self.shape, "duty": self.duty, "b_peak_t": self.b_peak,
+            "thickness_m": self.thickness, "resistivity_ohm_m": self.resistivity, "temperature_c": self.temperature,
+            "frequency_hz": lst(self.freq), "loss_w_m3": lst(self.total), "hysteresis_w_m3": lst(self.hysteresis),
+            "classical_w_m3": lst(self.classical), "excess_w_m3": lst(self.excess),
+            "crossover_hz": self.crossover.freq, "crossover": self.crossover.message,
+            "loss_model": self.loss_model, "warnings": list(self.warnings) + list(self.crossover.warnings),
+        }
+
+
+def sweep_frequency(material, shape="sine", *, b_peak: float | None = None, duty: float = 0.5, freqs=None, thickness=None,
+                    resistivity=None, skin_effect: bool = True, include_excess: bool = False, temperature=None,
+                    h_dc=None) -> FrequencySweep:
+    """Loss parts against frequency for one flux shape, flux and lamination.
 
     Parameters
     ----------
-    material : workbench.materials.Material
-        Material data.
-    shape : {"sine", "triangle", "trapezoid"}
-        Waveform shape.
-    b_peak : float
-        Peak flux density [T].
+    material : workbench.materials.Material or str
+        Material data or its library name.
+    shape : {"sine", "triangle", "trapezoid"} or FluxWaveform
+        Waveform shape name, or one period of flux (e.g. a capture's averaged
+        period): its flux levels are kept and time is scaled to each frequency.
+    b_peak : float, optional
+        Peak flux density [T] (with a shape name).
     duty : float
         Duty cycle [-].
     freqs : array_like, optional
@@ -364,23 +285,27 @@ def sweep_frequency(material, shape: str = "sine", *, b_peak: float, duty: float
         Whether the crossover counts excess loss as eddy loss.
     temperature : float, optional
         Core temperature [degC].
+    h_dc : float, optional
+        DC bias field strength [A/m].
 
     Returns
     -------
     FrequencySweep
     """
-    f = DEFAULT_FREQS if freqs is None else np.asarray(freqs, dtype=float)
-    if f.ndim != 1 or f.size < 1 or not np.all(np.isfinite(f)) or np.any(f <= 0):
-        raise ValueError("freqs must be a 1-D array of finite positive frequencies")
-    d, rho, mu_r = _resolve(material, thickness, resistivity, skin_effect)
-    laws = shape_laws(material, shape, b_peak=b_peak, duty=duty, temperature=temperature)
-    classical = laws.classical(f, rho, d, mu_r)
-    hyst = laws.hysteresis(f)
-    exc = laws.excess(f)
-    sep_total = None if hyst is None else hyst + classical + exc
-    cross = _crossover(laws, material, rho, d, mu_r, include_excess, (min(1.0, f[0]), max(1e8, f[-1])))
+    f = DEFAULT_FREQS if freqs is None else freqs
+    wave = _shape(shape, b_peak, duty)
+    sw = core_loss_sweep(wave, material, f, temperature=temperature, thickness=thickness, resistivity=resistivity,
+                         skin_effect=skin_effect, h_dc=h_dc)
+    laws = sw.laws
+    cross = _crossover(laws, include_excess, (min(1.0, float(sw.freq[0])), max(1e8, float(sw.freq[-1]))))
+    mat = laws.material
+    st = getattr(mat, "steinmetz", None)
+    named = isinstance(wave, ShapeSpec)
     return FrequencySweep(
-        material=material.name, shape=shape, duty=duty, b_peak=float(b_peak), thickness=d, resistivity=rho,
-        density=material.density, freq=f, total=laws.igse_total(f), classical=classical, hysteresis=hyst,
-        excess=exc, separation_total=sep_total, crossover=cross, valid_freq_range=tuple(material.steinmetz.freq_range),
+        material=mat.name, shape=wave.shape if named else "waveform", duty=(wave.duty if named else None),
+        b_peak=laws.b_peak, thickness=laws.thickness, resistivity=laws.resistivity,
+        density=getattr(mat, "density", None), freq=sw.freq, total=sw.total, classical=sw.classical,
+        hysteresis=sw.hysteresis, excess=sw.excess, separation_total=sw.separation_total, crossover=cross,
+        valid_freq_range=tuple(st.freq_range) if st is not None else (0.0, np.inf), loss_model=laws.model_name,
+        relaxation=sw.relaxation, temperature=laws.temperature, warnings=sw.warnings,
     )
