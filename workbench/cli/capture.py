@@ -86,11 +86,11 @@ def _pairs(items, option: str) -> dict:
     return out
 
 
-def add_capture_options(p: argparse.ArgumentParser) -> None:
-    """Geometry and reader options of a capture."""
+def add_capture_options(p: argparse.ArgumentParser, *, required: bool = True) -> None:
+    """Geometry and reader options of a capture (``required=False`` where a capture is one choice of several)."""
     g = p.add_argument_group("core and windings")
-    g.add_argument("--turns", required=True, help="turns of the measured winding; primary turns N1 of a two-winding capture")
-    g.add_argument("--area", required=True, help="effective core area A_e, e.g. 52mm2 or 5.2e-5 [m^2]")
+    g.add_argument("--turns", required=required, help="turns of the measured winding; primary turns N1 of a two-winding capture")
+    g.add_argument("--area", required=required, help="effective core area A_e, e.g. 52mm2 or 5.2e-5 [m^2]")
     g.add_argument("--volume", help="effective core volume V_e, e.g. 5.6cm3 [m^3] (default A_e * l_e)")
     g.add_argument("--path-length", help="effective magnetic path length l_e, e.g. 107mm [m]")
     g.add_argument("--sense-turns", help="turns N2 of the sense winding (two-winding captures)")
