@@ -529,3 +529,68 @@ def test_cli_save_as_like(tmp_path):
                            capture_output=True, text=True, cwd=REPO, env=dict(os.environ, **env))
     alpha, fmax = map(float, check.stdout.split())
     assert fmax == 1e5 and 1.0 < alpha < 2.0
+
+
+# --- fits that must not claim more than the data holds (issue 11 item 9) ----------------------
+def test_two_frequency_crossover_not_resolved_when_the_hysteresis_interval_includes_zero():
+    rng = np.random.default_rng(4)
+    f = np.array([50.0, 100.0, 200.0, 400.0, 800.0])
+    # invented: a tiny hysteresis energy buried in 5 % scatter of the energy per cycle
+    w = (0.2 + 0.1 * f) * np.exp(rng.normal(0, 0.05, f.size))
+    res = fit_two_frequency(loss_table_from_arrays(f, 1.0, w * f, source="scatter.csv"))
+    ref = stats.linregress(f, w)  # scipy reference: OLS intercept and its standard error
+    tq = stats.t.ppf(0.975, f.size - 2)
+    assert ref.intercept - tq * ref.intercept_stderr <= 0  # the interval of W_h includes zero
+    lv = res.level
+    assert not lv.resolved and math.isnan(lv.crossover_hz)
+    assert "not resolved by this table" in lv.note
+    d = res.to_dict()
+    assert d["crossover_hz"] is None and d["crossover_resolved"] is False
+    # a table that does resolve it keeps the crossover and says nothing
+    w2 = (30.0 + 0.1 * f) * np.exp(rng.normal(0, 0.01, f.size))
+    ref2 = stats.linregress(f, w2)
+    assert ref2.intercept - tq * ref2.intercept_stderr > 0
+    ok = fit_two_frequency(loss_table_from_arrays(f, 1.0, w2 * f)).level
+    assert ok.resolved and ok.note == ""
+    assert ok.crossover_hz == pytest.approx(ref2.intercept / ref2.slope, rel=1e-9)
+
+
+def _write_table(path, f, p):
+    path.write_text("freq (Hz), b_peak (T), loss (W/m3)\n" + "".join(f"{float(a)!r}, 1.0, {float(b)!r}\n" for a, b in zip(f, p)))
+    return path
+
+
+def _run_cli(*argv):
+    return subprocess.run([sys.executable, "-m", "workbench", *argv], capture_output=True, text=True, timeout=120)
+
+
+def test_two_frequency_cli_says_not_resolved(tmp_path):
+    f = np.array([50.0, 100.0, 200.0, 400.0, 800.0])
+    w = (0.2 + 0.1 * f) * np.exp(np.random.default_rng(4).normal(0, 0.05, f.size))
+    r = _run_cli("fit", str(_write_table(tmp_path / "scatter.csv", f, w * f)), "--model", "two-frequency")
+    assert r.returncode == 0, r.stderr
+    assert "not resolved by this table" in r.stdout
+
+
+@pytest.mark.parametrize("option, value", [("--thickness", "1e3"), ("--resistivity", "1e-300"),
+                                           ("--temperature", "-300")])
+def test_fit_cli_refuses_quantities_orders_of_magnitude_off(tmp_path, option, value):
+    table = _write_table(tmp_path / "t.csv", [50.0, 100.0, 200.0], [10.0, 25.0, 60.0])
+    r = _run_cli("fit", str(table), "--model", "separation", "--thickness", "0.35mm", "--resistivity", "52e-8",
+             option, value)
+    assert r.returncode == 2
+    line = r.stderr.strip()
+    assert option in line and "\n" not in line and len(line) < 300
+
+
+def test_band_split_names_the_frequencies_no_band_covers():
+    freqs = np.array([1e4, 2e4, 4e4, 7e4, 1e5, 1.5e5, 3e5, 6e5, 1e6])
+    f, b = _grid(freqs, [0.05, 0.1, 0.2])
+    p = np.where(f <= 1e5, 5.0 * f**1.2 * b**2.5, 5.0 * 1e5**1.2 * (f / 1e5) ** 2.2 * b**2.5)
+    res = fit_steinmetz_bands(loss_table_from_arrays(f, b, p), tolerance=0.25)
+    # the bands hold 1e4..1e5 and 1.5e5..1e6 Hz: nothing was measured between 100 and 150 kHz
+    assert res.gaps == ((1e5, 1.5e5),)
+    assert "no band's data covers 1e+05-1.5e+05 Hz" in res.message
+    assert res.to_dict()["uncovered_hz"] == [[1e5, 1.5e5]]
+    single = fit_steinmetz_bands(_synthetic(2), tolerance=0.25)
+    assert single.gaps == () and "covers" in single.message

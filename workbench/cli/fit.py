@@ -17,7 +17,7 @@ import argparse
 import math
 import sys
 
-from workbench.units import format_quantity, parse_quantity
+from workbench.units import format_quantity, parse_checked, parse_quantity
 
 MODELS = ("steinmetz", "separation", "two-frequency")
 
@@ -78,11 +78,22 @@ def register(subparsers) -> argparse.ArgumentParser:
 
 
 # --------------------------------------------------------------------------------------------
+#: options checked against the plausible range of their quantity (workbench.checks.PLAUSIBLE)
+_KINDS = {"thickness": "thickness", "resistivity": "resistivity", "temperature": "temperature",
+          "reference_temperature": "temperature", "density": "density", "b_peak": "b_peak", "b_sat": "b_peak"}
+
+
 def _opt(args, name, unit, label=None):
     value = getattr(args, name)
     if value is None:
         return None
-    return parse_quantity(value, unit, name=label or "--" + name.replace("_", "-"))
+    label = label or "--" + name.replace("_", "-")
+    if name in _KINDS:
+        x, warnings = parse_checked(value, _KINDS[name], name=label, unit=unit)
+        notes = args.__dict__.setdefault("input_warnings", [])
+        notes.extend(w for w in warnings if w not in notes)
+        return x
+    return parse_quantity(value, unit, name=label)
 
 
 def _fraction(text: str, name: str) -> float:
@@ -205,7 +216,7 @@ def _run_two_frequency(args, table):
     text = [f"Two-frequency method on {table.source} (energy per cycle W = P/f = W_h + s f):"]
     for i, lv in enumerate(fit.levels):
         mark = "*" if i == fit.selected else " "
-        cross = format_quantity(lv.crossover_hz, "Hz") if math.isfinite(lv.crossover_hz) else "none (slope <= 0)"
+        cross = format_quantity(lv.crossover_hz, "Hz") if math.isfinite(lv.crossover_hz) else lv.note
         text.append(
             f" {mark} B_peak {format_quantity(lv.b_peak, 'T')}: W_h = {lv.hysteresis_energy:.4g} J/m^3 "
             f"{_ci(lv.hysteresis_energy_ci95)}, s = {lv.eddy_slope:.4g} J/m^3/Hz {_ci(lv.eddy_slope_ci95)}, "
@@ -268,6 +279,10 @@ def run(args) -> int:
         payload["saved_as"] = args.save_as
         payload["library"] = str(path)
         text.append(f"saved as user material {args.save_as!r} in {path}")
+    notes = getattr(args, "input_warnings", [])
+    if notes:
+        payload["warnings"] = list(payload.get("warnings", [])) + list(notes)
+        text.extend("warning: " + w for w in notes)
     if args.json:
         emit_json(payload)
     else:

@@ -32,7 +32,10 @@ class SteinmetzBands:
     split : bool
         True when the table needed more than one band.
     message : str
-        One sentence saying what was done.
+        What was done, and which frequencies no band's data covers.
+    gaps : tuple of (float, float)
+        Frequency intervals [Hz] between neighbouring bands' data, open at both ends: there
+        the set of the nearer band (split at ``edges``) is extrapolated.
     """
 
     bands: tuple
@@ -41,6 +44,7 @@ class SteinmetzBands:
     tolerance_met: bool
     split: bool
     message: str
+    gaps: tuple = ()
 
     @property
     def max_rel_error(self) -> float:
@@ -78,6 +82,7 @@ class SteinmetzBands:
         return to_jsonable({
             "split": self.split, "tolerance": self.tolerance, "tolerance_met": self.tolerance_met,
             "message": self.message, "edges": self.edges,
+            "uncovered_hz": [list(g) for g in self.gaps],
             "bands": [dict(b.to_dict(), freq_low=b.freq_range[0], freq_high=b.freq_range[1]) for b in self.bands],
         })
 
@@ -188,10 +193,15 @@ def fit_steinmetz_bands(table: LossTable, *, tolerance: float = 0.25, min_freqs:
         edges.append(float(np.sqrt(g_freq[j0] * g_freq[i1])))
     edges.append(float(g_freq[-1]))
     worst_err = max(b.max_rel_error for b in bands)
+    gaps = tuple((float(a.freq_range[1]), float(b.freq_range[0])) for a, b in zip(bands[:-1], bands[1:])
+                 if b.freq_range[0] > a.freq_range[1] * (1 + 1e-9))
     if met:
         msg = (f"one set misses the {tolerance:.0%} tolerance (worst point {whole.max_rel_error:.1%}); "
                f"split into {nb} frequency bands, worst point {worst_err:.1%}")
     else:
         msg = (f"no split into bands of at least {min_freqs} frequencies meets the {tolerance:.0%} tolerance; "
                f"best found: {nb} band(s), worst point {worst_err:.1%}")
-    return SteinmetzBands(bands, np.array(edges), float(tolerance), met, nb > 1, msg)
+    if gaps:
+        msg += ("; no band's data covers " + ", ".join(f"{lo:.4g}-{hi:.4g} Hz" for lo, hi in gaps)
+                + " (between measured frequencies: the nearer band's set is extrapolated there)")
+    return SteinmetzBands(bands, np.array(edges), float(tolerance), met, nb > 1, msg, gaps)

@@ -2,9 +2,9 @@
 from __future__ import annotations
 
 import datetime as _dt
-import math
 from pathlib import Path
 
+from workbench.checks import positive_number
 from workbench.fitting.separation import SeparationFit
 from workbench.fitting.steinmetz import SteinmetzFit
 
@@ -53,9 +53,7 @@ def fitted_material(name: str, fit, *, base=None, family: str | None = None, des
     values, sources = {}, {}
     for key in _MATERIAL_FIELDS:
         if properties.get(key) is not None:
-            v = float(properties[key])
-            if not (math.isfinite(v) and v > 0):
-                raise ValueError(f"{key} must be finite and positive, got {properties[key]!r}")
+            v = positive_number(properties[key], key)
             values[key], sources[key] = v, "given by the user when saving the fit"
         elif base is not None:
             values[key], sources[key] = getattr(base, key), f"from {base.name}: {base.sources.get(key, 'no source')}"

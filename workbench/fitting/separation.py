@@ -8,6 +8,7 @@ import numpy as np
 from scipy import optimize
 
 from workbench.analysis.loss_table import LossTable
+from workbench.checks import positive_number
 from workbench.fitting._common import (
     _LEVEL,
     _check_table,
@@ -154,16 +155,12 @@ def fit_separation(table: LossTable, *, thickness: float, resistivity: float | N
     """
     table = _check_table(table)
     src = table.source
-    d = float(thickness)
-    if not (math.isfinite(d) and d > 0):
-        raise ValueError(f"thickness must be finite and positive [m], got {thickness!r}")
+    d = positive_number(thickness, "thickness", unit="m")
     if resistivity is None and not fit_resistivity:
         raise ValueError("resistivity is required unless the resistivity is fitted (fit_resistivity=True)")
     rho0 = None
     if resistivity is not None:
-        rho0 = float(resistivity)
-        if not (math.isfinite(rho0) and rho0 > 0):
-            raise ValueError(f"resistivity must be finite and positive [ohm m], got {resistivity!r}")
+        rho0 = positive_number(resistivity, "resistivity", unit="ohm m")
     if table.temperatures.size > 1:
         raise ValueError(f"{src}: the table has several temperatures; select one for a loss separation")
     nf = _n_distinct(table.freq)

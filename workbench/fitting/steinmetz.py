@@ -8,6 +8,7 @@ import numpy as np
 from scipy import optimize
 
 from workbench.analysis.loss_table import LossTable
+from workbench.checks import positive_array
 from workbench.fitting._common import (
     _ALPHA_BOUNDS,
     _BETA_BOUNDS,
@@ -230,8 +231,7 @@ class SteinmetzFit:
             raise ValueError(f"level must lie in (0, 1), got {level!r}")
         f, b = np.broadcast_arrays(np.asarray(freq, float), np.asarray(b_peak, float))
         for name, arr in (("freq", f), ("b_peak", b)):
-            if not np.all(np.isfinite(arr)) or np.any(arr <= 0):
-                raise ValueError(f"{name} must be finite and positive, got {arr!r}")
+            positive_array(arr, name)
         t_given = temperature
         t = None
         if self.temperature is not None:

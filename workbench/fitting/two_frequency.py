@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from workbench.analysis.loss_table import LossTable
+from workbench.checks import positive_number
 from workbench.fitting._common import (
     _LEVEL,
     _check_table,
@@ -32,7 +33,8 @@ class TwoFrequencyLevel:
     eddy_slope : float
         Slope s [J/m^3/Hz].
     crossover_hz : float
-        W_h / s [Hz], where the eddy part equals the hysteresis part; NaN if s <= 0.
+        W_h / s [Hz], where the eddy part equals the hysteresis part; NaN when it is not
+        resolved (see ``resolved``) or s <= 0.
     hysteresis_energy_ci95, eddy_slope_ci95 : tuple
         95 % intervals (NaN with only two frequencies).
     n_points, n_freqs : int
@@ -40,6 +42,11 @@ class TwoFrequencyLevel:
         Frequencies used [Hz].
     rows : ndarray
         File rows used.
+    resolved : bool
+        False when the 95 % interval of W_h or of s includes zero (or either is not
+        positive): the table does not separate the two parts and no crossover is given.
+    note : str
+        Empty, or why the crossover is not given / has no interval.
     """
 
     b_peak: float
@@ -52,11 +59,14 @@ class TwoFrequencyLevel:
     n_freqs: int
     freq_range: tuple
     rows: np.ndarray = field(repr=False)
+    resolved: bool = True
+    note: str = ""
 
     def to_dict(self) -> dict:
         return to_jsonable({
             "b_peak": self.b_peak, "hysteresis_energy": self.hysteresis_energy,
             "eddy_slope": self.eddy_slope, "crossover_hz": self.crossover_hz,
+            "crossover_resolved": self.resolved, "crossover_note": self.note,
             "hysteresis_energy_ci95": self.hysteresis_energy_ci95,
             "eddy_slope_ci95": self.eddy_slope_ci95, "n_points": self.n_points,
             "n_freqs": self.n_freqs, "freq_range": self.freq_range, "rows": self.rows,
@@ -179,9 +189,7 @@ def fit_two_frequency(table: LossTable, *, b_peak: float | None = None, rtol: fl
     label, n_levels = _group_levels(b, rtol)
     wanted = None
     if b_peak is not None:
-        bp = float(b_peak)
-        if not (math.isfinite(bp) and bp > 0):
-            raise ValueError(f"b_peak must be finite and positive [T], got {b_peak!r}")
+        bp = positive_number(b_peak, "b_peak", unit="T")
         means = np.array([b[label == i].mean() for i in range(n_levels)])
         i = int(np.argmin(np.abs(means - bp)))
         if abs(means[i] - bp) > rtol * bp:
@@ -212,9 +220,21 @@ def fit_two_frequency(table: LossTable, *, b_peak: float | None = None, rtol: fl
             ci_s = _interval(coef[1], math.sqrt(cov[1, 1]), tq)
         else:
             ci_h = ci_s = (math.nan, math.nan)
-        cross = coef[0] / coef[1] if coef[1] > 0 and coef[0] > 0 else math.nan
+        resolved, note = True, ""
+        if not (coef[0] > 0 and coef[1] > 0):
+            resolved = False
+            note = ("not resolved by this table: the fitted "
+                    + ("hysteresis energy" if coef[0] <= 0 else "eddy slope") + " is not positive")
+        elif math.isfinite(ci_h[0]) and (ci_h[0] <= 0 or ci_s[0] <= 0):
+            resolved = False
+            note = ("not resolved by this table: the 95 % interval of the "
+                    + ("hysteresis energy" if ci_h[0] <= 0 else "eddy slope") + " includes zero")
+        elif not math.isfinite(ci_h[0]):
+            note = "two frequencies only: the crossover has no interval"
+        cross = coef[0] / coef[1] if resolved else math.nan
         levels.append(TwoFrequencyLevel(float(np.median(b[m])), float(coef[0]), float(coef[1]), float(cross),
-                                        ci_h, ci_s, int(fi.size), nf, (float(fi.min()), float(fi.max())), rows[m]))
+                                        ci_h, ci_s, int(fi.size), nf, (float(fi.min()), float(fi.max())), rows[m],
+                                        resolved, note))
     if not levels:
         raise ValueError(f"{src}: no flux level has two or more frequencies; the two-frequency method needs "
                          "at least two frequencies at one flux level")
