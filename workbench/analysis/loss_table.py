@@ -22,7 +22,12 @@ loss           p, pv, p_v, loss, core_loss, loss_density, p_loss       W/m3, kW/
 temperature    temp, temperature, t_core, theta                        C, degC, °C, K
 shape          shape, waveform, wave                                   (text)
 duty           duty, duty_cycle, d                                     fraction or %
+h_dc           h_dc, hdc, h_bias, dc_bias_h                            A/m, kA/m
+b_dc           b_dc, bdc, b_bias, dc_bias_b                            T, mT
 =============  ======================================================  =================
+
+``h_dc`` / ``b_dc`` are the DC bias (premagnetisation) of the row: field strength or flux
+density; a table carries at most one of them.
 
 A column named only ``b`` or ``flux`` is ambiguous (peak or peak-to-peak) and needs the
 ``flux_kind`` option. Loss given per kilogram needs the material ``density``. Every unit
@@ -72,6 +77,8 @@ _NAME_ALIASES: dict[str, tuple[str, ...]] = {
     "temperature": ("temp", "temperature", "t_core", "theta", "t_c"),
     "shape": ("shape", "waveform", "wave", "waveshape"),
     "duty": ("duty", "duty_cycle", "d", "dutycycle"),
+    "h_dc": ("h_dc", "hdc", "h_bias", "dc_bias_h", "h_dc_bias"),
+    "b_dc": ("b_dc", "bdc", "b_bias", "dc_bias_b", "b_dc_bias"),
 }
 _LOOKUP = {alias: key for key, aliases in _NAME_ALIASES.items() for alias in aliases}
 _HEADER_RE = re.compile(r"^\s*(?P<name>[^(\[]*?)\s*(?:[(\[]\s*(?P<unit>[^)\]]*?)\s*[)\]])?\s*$")
@@ -110,6 +117,10 @@ class LossTable:
         Glossary name -> header text of the column read.
     density : float or None
         Density used to turn W/kg into W/m^3 [kg/m^3], None if not needed.
+    h_dc : ndarray or None
+        DC bias field strength of each row [A/m], None without such a column.
+    b_dc : ndarray or None
+        DC bias flux density of each row [T], None without such a column.
     """
 
     freq: np.ndarray
@@ -122,6 +133,8 @@ class LossTable:
     source: str = "<arrays>"
     columns: dict = field(default_factory=dict)
     density: float | None = None
+    h_dc: np.ndarray | None = None
+    b_dc: np.ndarray | None = None
 
     def __post_init__(self):
         f = np.array(self.freq, dtype=float).ravel()
@@ -161,6 +174,24 @@ class LossTable:
                 raise ValueError(f"{self.source}: row {rows[i]}: triangle duty must lie in (0, 1), got {d!r}")
             elif s == "trapezoid" and not (0 < d <= 1):
                 raise ValueError(f"{self.source}: row {rows[i]}: trapezoid duty must lie in (0, 1], got {d!r}")
+        bias = {}
+        for name in ("h_dc", "b_dc"):
+            value = getattr(self, name)
+            if value is None:
+                continue
+            arr = np.array(value, dtype=float).ravel()
+            if arr.size != n:
+                raise ValueError(f"{self.source}: {name} has {arr.size} values, freq has {n}")
+            bad = ~np.isfinite(arr)
+            if bad.any():
+                i = int(np.argmax(bad))
+                raise ValueError(f"{self.source}: row {rows[i]}: {name} must be finite, got {arr[i]!r}")
+            arr.setflags(write=False)
+            bias[name] = arr
+        if len(bias) == 2:
+            raise ValueError(f"{self.source}: give the DC bias as h_dc (A/m) or as b_dc (T), not both")
+        for name, arr in bias.items():
+            object.__setattr__(self, name, arr)
         for arr in (f, b, p, duty, rows) + ((temp,) if temp is not None else ()):
             arr.setflags(write=False)
         object.__setattr__(self, "freq", f)
@@ -197,6 +228,8 @@ class LossTable:
             None if self.temperature is None else self.temperature[idx],
             tuple(self.shape[i] for i in idx), self.duty[idx], self.rows[idx],
             self.source, self.columns, self.density,
+            None if self.h_dc is None else self.h_dc[idx],
+            None if self.b_dc is None else self.b_dc[idx],
         )
 
     def at_temperature(self, temperature: float, tol: float = 0.5) -> "LossTable":
@@ -222,11 +255,13 @@ class LossTable:
             "shape": list(self.shape),
             "duty": [None if math.isnan(d) else float(d) for d in self.duty],
             "rows": self.rows.tolist(),
+            "h_dc": None if self.h_dc is None else self.h_dc.tolist(),
+            "b_dc": None if self.b_dc is None else self.b_dc.tolist(),
         }
 
 
 def loss_table_from_arrays(freq, b_peak, loss, *, temperature=None, shape=None, duty=None,
-                           source: str = "<arrays>") -> LossTable:
+                           source: str = "<arrays>", h_dc=None, b_dc=None) -> LossTable:
     """Build a :class:`LossTable` from SI arrays.
 
     Parameters
@@ -245,6 +280,10 @@ def loss_table_from_arrays(freq, b_peak, loss, *, temperature=None, shape=None, 
         Duty [-] of triangle/trapezoid rows.
     source : str, optional
         Name used in error messages.
+    h_dc : array_like, optional
+        DC bias field strength [A/m].
+    b_dc : array_like, optional
+        DC bias flux density [T].
 
     Returns
     -------
@@ -260,8 +299,11 @@ def loss_table_from_arrays(freq, b_peak, loss, *, temperature=None, shape=None, 
         duty = np.broadcast_to(np.asarray(duty, dtype=float), (n,))
     if temperature is not None:
         temperature = np.broadcast_to(np.asarray(temperature, dtype=float), (n,))
+    bias = {k: None if v is None else np.broadcast_to(np.asarray(v, dtype=float), (n,))
+            for k, v in (("h_dc", h_dc), ("b_dc", b_dc))}
     return LossTable(f, np.broadcast_to(np.asarray(b_peak, float), (n,)),
-                     np.asarray(loss, float), temperature, tuple(shape), duty, None, source)
+                     np.asarray(loss, float), temperature, tuple(shape), duty, None, source,
+                     **bias)
 
 
 # --------------------------------------------------------------------------------------------
@@ -469,6 +511,17 @@ def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=N
         t_offset = _TEMPERATURE_UNITS.get(tu.strip().lower())
         if t_offset is None:
             raise ValueError(f"{source}: column {header[idx]!r}: temperature unit must be C, degC or K, got {tu!r}")
+    bias_key = None
+    if "h_dc" in wanted and "b_dc" in wanted:
+        raise ValueError(f"{source}: columns {header[wanted['h_dc']]!r} and {header[wanted['b_dc']]!r} both give "
+                         "the DC bias: keep one (h_dc in A/m or b_dc in T)")
+    for key, si in (("h_dc", "A/m"), ("b_dc", "T")):
+        if key in wanted:
+            idx = wanted[key]
+            if not parsed[idx][1]:
+                raise ValueError(f"{source}: column {header[idx]!r} has no unit: write it in the header, "
+                                 f"e.g. '{parsed[idx][0]} ({si})'")
+            bias_key, bias_scale = key, _scale(parsed[idx][1], si, f"column {header[idx]!r}", source)
     duty_scale = 1.0
     if "duty" in wanted:
         du = parsed[wanted["duty"]][1]
@@ -478,14 +531,14 @@ def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=N
     if not data_rows:
         raise ValueError(f"{source}: the table has a header but no data rows")
     n = len(data_rows)
-    out = {k: np.empty(n) for k in ("freq", "b", "loss", "temp", "duty")}
+    out = {k: np.empty(n) for k in ("freq", "b", "loss", "temp", "duty", "bias")}
     shapes, row_numbers = [], np.empty(n, dtype=int)
     for j, (num, rec) in enumerate(data_rows):
         row_numbers[j] = num
         if len(rec) != len(header):
             raise ValueError(f"{source}: row {num}: {len(rec)} cells, the header has {len(header)}")
 
-        def cell(key):
+        def cell(key, rec=rec, num=num):
             return _parse_cell(rec[wanted[key]], source, num, header[wanted[key]])
 
         for key, name, scale in (("freq", "freq", f_scale), ("b", flux_key, b_scale), ("loss", "loss", p_scale)):
@@ -495,6 +548,7 @@ def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=N
                 raise ValueError(f"{source}: row {num}, column {header[wanted[name]]!r}: {what} must be positive, got {value!r}")
             out[key][j] = value * scale
         out["temp"][j] = cell("temperature") + t_offset if t_offset is not None else np.nan
+        out["bias"][j] = cell(bias_key) * bias_scale if bias_key is not None else np.nan
         shape = "sine"
         if "shape" in wanted:
             raw = rec[wanted["shape"]].strip().lower()
@@ -516,8 +570,9 @@ def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=N
         shapes.append(shape)
         out["duty"][j] = duty
     cols = {k: header[i] for k, i in wanted.items()}
+    bias = {bias_key: out["bias"]} if bias_key is not None else {}
     return LossTable(out["freq"], out["b"], out["loss"], out["temp"] if t_offset is not None else None,
-                     tuple(shapes), out["duty"], row_numbers, source, cols, used_density)
+                     tuple(shapes), out["duty"], row_numbers, source, cols, used_density, **bias)
 
 
 def write_loss_table(table: LossTable, path, *, comment: str | None = None) -> Path:
@@ -542,6 +597,10 @@ def write_loss_table(table: LossTable, path, *, comment: str | None = None) -> P
     head = ["freq (Hz)", "b_peak (T)", "loss (W/m3)"]
     if table.temperature is not None:
         head.append("temp (C)")
+    if table.h_dc is not None:
+        head.append("h_dc (A/m)")
+    if table.b_dc is not None:
+        head.append("b_dc (T)")
     if has_shape:
         head += ["shape", "duty"]
     lines = [f"# {c}" for c in (comment.splitlines() if comment else [])]
@@ -550,6 +609,9 @@ def write_loss_table(table: LossTable, path, *, comment: str | None = None) -> P
         cells = [f"{table.freq[i]:.6g}", f"{table.b_peak[i]:.6g}", f"{table.loss[i]:.6g}"]
         if table.temperature is not None:
             cells.append(f"{table.temperature[i]:.6g}")
+        for bias in (table.h_dc, table.b_dc):
+            if bias is not None:
+                cells.append(f"{bias[i]:.6g}")
         if has_shape:
             cells += [table.shape[i], "" if np.isnan(table.duty[i]) else f"{table.duty[i]:.6g}"]
         lines.append(", ".join(cells))
