@@ -18,7 +18,7 @@ from __future__ import annotations
 import argparse
 import math
 
-from workbench.units import format_quantity, parse_quantity
+from workbench.units import format_quantity, parse_checked, parse_quantity
 
 #: One-line caution printed under every human-readable result.
 CAUTION = (
@@ -30,11 +30,28 @@ CAUTION = (
 # ---------------------------------------------------------------------------
 # helpers shared by the sub-commands of this package (folder, shape)
 # ---------------------------------------------------------------------------
-def quantity(text, unit: str, name: str, *, positive: bool = True):
-    """Parse an optional command-line quantity into SI (None stays None)."""
+#: options checked against the plausible range of their quantity (workbench.checks.PLAUSIBLE)
+OPTION_KINDS = {
+    "--turns": "turns", "--sense-turns": "turns", "--area": "area", "--volume": "volume",
+    "--path-length": "path_length", "--thickness": "thickness", "--resistivity": "resistivity",
+    "--temperature": "temperature", "--b-peak": "b_peak", "--freq": "freq",
+}
+
+
+def quantity(text, unit: str, name: str, *, positive: bool = True, warnings: list | None = None):
+    """Parse an optional command-line quantity into SI (None stays None).
+
+    Options named in ``OPTION_KINDS`` are checked against their plausible range: values
+    orders of magnitude off are refused; unusual ones add a sentence to ``warnings``.
+    """
     if text is None:
         return None
-    value = parse_quantity(text, unit, name=name)
+    if name in OPTION_KINDS:
+        value, notes = parse_checked(text, OPTION_KINDS[name], name=name, unit=unit)
+        if warnings is not None:
+            warnings.extend(notes)
+    else:
+        value = parse_quantity(text, unit, name=name)
     if positive and not (math.isfinite(value) and value > 0):
         raise ValueError(f"{name}: must be positive, got {text!r}")
     return value
