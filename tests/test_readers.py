@@ -18,8 +18,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from workbench.capture import CaptureData, CaptureError, read_capture, read_csv_capture
-from workbench.capture import read_npz_capture
+from workbench.capture import CaptureData, CaptureError, read_capture, read_csv_capture, read_npz_capture
 
 DATA = Path(__file__).resolve().parent / "data"
 MALFORMED = DATA / "malformed"
@@ -70,7 +69,8 @@ EXPECTED_ERRORS: dict[str, list[str]] = {
     "ragged_row_extra_field_row4.csv": ["row 4", "inconsistent column count", "4 field(s)", "has 3"],
     "ragged_row_missing_field_row5.csv": ["row 5", "inconsistent column count", "2 field(s)"],
     "bom_then_garbage.csv": ["no numeric data rows"],
-    "decimal_comma_semicolon.csv": ["row 2", "decimal comma"],
+    "decimal_comma_in_a_comma_delimited_table_row3.csv": ["row 3", "inconsistent column count",
+                                                          "decimal comma"],
     "header_names_3_data_fields_2.csv": ["header row 1 has 3 names", "have 2 fields"],
     "no_time_column_no_interval.csv": ["no time column", "no sample interval", "time_column="],
     "unrecognised_column_names.csv": ["no column of the header", "'probe A'", "columns="],
@@ -87,6 +87,17 @@ EXPECTED_ERRORS: dict[str, list[str]] = {
     "npz_two_dimensional_v.npz": ["array 'v'", "shape (5, 2)"],
     "npz_no_channel_arrays.npz": ["no channel array", "temperature"],
     "npz_time_not_increasing_sample2.npz": ["array 't', sample 2", "not increasing"],
+    # hostile files of issue 11: one clear line instead of a traceback or a memory blow-up
+    "zip_named_csv_with_text_member.csv": ["no numpy arrays", "'notes.txt'"],
+    "npz_member_not_an_array.npz": ["member 'v'", "not a readable numpy array"],
+    "npz_header_declares_1e11_samples.npz": ["array 'v'", "shape (100000000000,)", "0 bytes"],
+    "npz_inf_in_v_beside_a_text_member.npz": ["array 'v'", "sample 4", "inf"],
+    "values_plus_minus_1e308_row3.csv": ["row 3", "column 2 ('v (V)')", "1e+308 V",
+                                         "beyond any physical"],
+    "fullwidth_digit_row4.csv": ["row 4", "column 2 ('v (V)')", "text '\uff15'"],
+    "digit_separator_1_000_row3.csv": ["row 3", "column 2 ('v (V)')", "text '1_000'"],
+    "time_steps_of_1e-300_s.csv": ["mean step of 1e-300 s", "check the time unit"],
+    "current_column_in_volts.csv": ["'V'", "column 3 ('current (V)')", "unit of A"],
 }
 
 
@@ -113,6 +124,8 @@ def test_malformed_file_raises_clear_error(name, parser):
         read_capture(path)
     message = str(info.value)
     assert str(path) in message
+    assert "\n" not in message and len(message) < 300, message
+    assert "nan" not in message.lower() or "nan" in name  # never a NaN the file does not hold
     for fragment in EXPECTED_ERRORS[name]:
         assert fragment in message, f"{fragment!r} missing from: {message}"
 

@@ -23,6 +23,7 @@ import math
 import os
 import sys
 import tempfile
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -98,8 +99,8 @@ def malformed_files() -> dict[str, bytes]:
         ),
         "ragged_row_missing_field_row5.csv": _csv(HEADER, _rows(3), "3.000e-08,24.000\n", _rows(3, 4)),
         "bom_then_garbage.csv": b"\xef\xbb\xbf" + b"%%%% not a capture %%%%\n<<<>>>\n",
-        "decimal_comma_semicolon.csv": _csv(
-            "time (s);v (V)\n", "0,0;24,5\n", "0,00000001;24,5\n", "0,00000002;-16,0\n"
+        "decimal_comma_in_a_comma_delimited_table_row3.csv": _csv(
+            "time (s),v (V)\n", "0,24\n", "1e-8,24,5\n", "2e-8,-16\n"
         ),
         "header_names_3_data_fields_2.csv": _csv(HEADER, "0,24\n1e-8,24\n2e-8,-16\n"),
         "no_time_column_no_interval.csv": _csv("v (V),i (A)\n", "24,0.5\n24,0.6\n-16,0.5\n"),
@@ -125,8 +126,56 @@ def malformed_files() -> dict[str, bytes]:
         "npz_time_not_increasing_sample2.npz": _npz(
             t=np.array([0.0, 2e-8, 1e-8, 3e-8, 4e-8]), v=np.ones(5)
         ),
+        # hostile files (issue 11): each once gave a traceback, a hang or a memory blow-up
+        "zip_named_csv_with_text_member.csv": _zip({"notes.txt": b"bench notes (invented)\n"}),
+        "npz_member_not_an_array.npz": _zip(
+            {"t.npy": _npy(t5), "v.npy": b"not an array, only text (invented)\n"}
+        ),
+        "npz_header_declares_1e11_samples.npz": _zip(
+            {"t.npy": _npy(t5), "v.npy": _npy_header_only((10**11,))}
+        ),
+        "npz_inf_in_v_beside_a_text_member.npz": _zip(
+            {"t.npy": _npy(t5), "v.npy": _npy(np.array([1.0, 2.0, 3.0, 4.0, np.inf])),
+             "readme.txt": b"invented\n"}
+        ),
+        "values_plus_minus_1e308_row3.csv": _csv(HEADER, _rows(1), "1.000e-08,1e308,0.5\n",
+                                                 "2.000e-08,-1e308,0.5\n", _rows(2, 3)),
+        "fullwidth_digit_row4.csv": _csv(HEADER, _rows(2)).replace(b"\n", b"\n", 1)
+        + "2.000e-08,\uff15,0.5020\n".encode("utf-8") + _csv(_rows(3, 3)),
+        "digit_separator_1_000_row3.csv": _csv(HEADER, _rows(1), "1.000e-08,1_000,0.5010\n",
+                                               _rows(3, 2)),
+        "time_steps_of_1e-300_s.csv": _csv(
+            HEADER, [f"{k * 1e-300!r},{24.0 if k % 2 else -16.0},0.5\n" for k in range(6)]
+        ),
+        "current_column_in_volts.csv": _csv("time (s),v (V),current (V)\n", _rows(5)),
     }
     return files
+
+
+def _zip(members: dict[str, bytes]) -> bytes:
+    """A zip archive with fixed time stamps (deterministic bytes)."""
+    buf = io.BytesIO()
+    with zipfile.ZipFile(buf, "w", compression=zipfile.ZIP_DEFLATED) as zf:
+        for name, content in members.items():
+            info = zipfile.ZipInfo(name, date_time=(2024, 6, 11, 12, 0, 0))
+            info.compress_type = zipfile.ZIP_DEFLATED
+            zf.writestr(info, content)
+    return buf.getvalue()
+
+
+def _npy(array: np.ndarray) -> bytes:
+    buf = io.BytesIO()
+    np.save(buf, array, allow_pickle=False)
+    return buf.getvalue()
+
+
+def _npy_header_only(shape: tuple[int, ...]) -> bytes:
+    """A .npy header declaring `shape` float64 samples, followed by no data at all."""
+    buf = io.BytesIO()
+    np.lib.format.write_array_header_1_0(
+        buf, {"descr": "<f8", "fortran_order": False, "shape": shape}
+    )
+    return buf.getvalue()  # the header writer puts the magic string first
 
 
 def edge_files() -> dict[str, bytes]:
@@ -165,6 +214,36 @@ def huge_header_bytes() -> bytes:
     line = "Comment,invented bench note padding the header of a capture file\n"
     count = 1_200_000 // len(line) + 1
     return (line * count + HEADER + "".join(_rows(5))).encode("ascii")
+
+
+def wide_header_bytes(columns: int = 10_000) -> bytes:
+    """A header of `columns` unrecognised names over rows of as many numbers (~0.3 MB)."""
+    header = ",".join(f"probe{k}" for k in range(columns)) + "\n"
+    row = ",".join("1" for _ in range(columns)) + "\n"
+    return (header + row * 3).encode("ascii")
+
+
+def zip_bomb_npz_bytes(unused_mib: int = 1024) -> bytes:
+    """An .npz of ~1 MB: a small capture and an unused member of `unused_mib` MiB of zeros.
+
+    The zeros are streamed into the archive, never held in memory whole.
+    """
+    buf = io.BytesIO()
+    t = np.arange(1000) * 1e-8
+    v = np.where(np.arange(1000) % 100 < 40, 24.0, -16.0) + 0.01 * np.sin(np.arange(1000))
+    with zipfile.ZipFile(buf, "w", compression=zipfile.ZIP_DEFLATED) as zf:
+        zf.writestr("t.npy", _npy(t))
+        zf.writestr("v.npy", _npy(v))
+        hb = io.BytesIO()
+        np.lib.format.write_array_header_1_0(
+            hb, {"descr": "<f8", "fortran_order": False, "shape": (unused_mib * 2**17,)}
+        )
+        with zf.open("unused_zeros.npy", "w", force_zip64=True) as member:
+            member.write(hb.getvalue())
+            block = bytes(1 << 20)
+            for _ in range(unused_mib):
+                member.write(block)
+    return buf.getvalue()
 
 
 def many_text_lines_bytes() -> bytes:
