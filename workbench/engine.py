@@ -444,11 +444,7 @@ def _relaxation_law(waveform: FluxWaveform, rx) -> _Relaxation | None:
     durations, before, after = models.flat_intervals(waveform)
     if durations.size == 0:
         return None
-    q = np.ones_like(durations)
-    if rx.q_r is not None:
-        # i2GSE direction factor (J. Muehlethaler et al., IEEE TPEL 27(2), 2012; our reading, from memory)
-        same = np.sign(after) == np.sign(before)
-        q = np.where(same, np.exp(-rx.q_r * np.abs(after / before)), 1.0)
+    q = models.relaxation_factors(before, after, rx.q_r)
     return _Relaxation(float(rx.k_r), float(rx.alpha_r), float(rx.beta_r), float(rx.tau),
                        np.asarray(before, float), np.asarray(durations, float), q, float(waveform.flux_pp))
 
@@ -895,9 +891,8 @@ def core_loss(waveform, material, *, temperature=None, thickness=None, resistivi
     ('iGSE', 3.9)
     """
     c = Conditions(temperature, thickness, resistivity, skin_effect, minor_loops, threshold, h_dc)
-    w = _as_waveform(waveform)
-    laws = loss_laws(w, material, c)
-    return _result_from_laws(laws, c, float(w.freq))
+    laws = loss_laws(waveform, material, c)
+    return _result_from_laws(laws, c, laws.ref_freq)
 
 
 # ---------------------------------------------------------------------------

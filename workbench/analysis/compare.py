@@ -318,7 +318,7 @@ def compare_materials(materials, shape: str = "sine", *, b_peak: float, loss_den
     for m in mats:
         st = m.steinmetz
         laws = loss_laws(ShapeSpec(shape, b, 1.0, duty), m, Conditions(temperature=temperature))
-        warnings += [f"{m.name}: {w}" if not w.startswith(m.name) else w for w in laws.warnings]
+        warnings += [w if m.name in w else f"{m.name}: {w}" for w in laws.warnings]
         loss = laws.parts(f)["total"]
         b_loss = b * flux_scale_at_loss(laws, f, pv)
         b_use = np.minimum(b_loss, m.b_sat)

@@ -20,6 +20,8 @@ SUBCOMMAND_MODULES = (
     "workbench.cli.folder",
     "workbench.cli.materials",
     "workbench.cli.shape",
+    "workbench.cli.sweep",
+    "workbench.cli.compare",
     "workbench.cli.crossover",
     "workbench.cli.fit",
 )

@@ -7,76 +7,79 @@ Examples::
     workbench shape --shape sine --b-peak 1.5T --freq 50 --steinmetz 8.1 1.3 1.9
 
 ``--duty`` is the rising fraction of a triangle and the fraction of the period with voltage
-applied for a trapezoid (three-level). JSON output is SI (Hz, T, W/m^3, W/kg).
+applied for a trapezoid (three-level). JSON output is SI (Hz, T, W/m^3, W/kg, W).
 """
 from __future__ import annotations
 
 import argparse
 
-from workbench.cli.capture import CAUTION, add_model_options, model_settings, quantity, table
+from workbench.cli.capture import CAUTION, add_model_options, quantity, table
+from workbench.cli.common import add_shape_options, engine_conditions, shape_or_capture
 from workbench.units import format_quantity
 
 
 def register(subparsers) -> argparse.ArgumentParser:
     """Add the ``shape`` sub-command."""
-    from workbench.analysis.shapes import SHAPES
-
     p = subparsers.add_parser(
         "shape",
         help="loss of a synthetic waveform (shape, duty, B_peak, frequency) on a material",
         description="Evaluate the iGSE loss and the separation parts of a synthetic flux waveform. " + CAUTION,
     )
-    p.add_argument("--shape", choices=SHAPES, default="sine", help="waveform shape (default sine)")
-    p.add_argument("--duty", default="0.5", help="duty cycle, 0-1 or e.g. 30%% (default 0.5)")
-    p.add_argument("--b-peak", required=True, help="peak flux density, e.g. 100mT")
-    p.add_argument("--freq", required=True, help="frequency, e.g. 100k")
+    add_shape_options(p, capture=False, b_peak_required=True)
     add_model_options(p, required=True)
+    p.add_argument("--volume", help="core volume, e.g. 4.2cm3, for the loss in watts")
     p.add_argument("--json", action="store_true", help="print one JSON document (SI units)")
     p.set_defaults(func=run)
     return p
 
 
+def loss_rows(res, volume=None) -> list:
+    """Table rows of a :class:`workbench.engine.LossResult` (shared with other commands)."""
+    rows = [(f"loss ({res.loss_model})", format_quantity(res.total, "W/m3", 4))]
+    if res.loss_w_kg is not None:
+        rows.append(("loss per mass", format_quantity(res.loss_w_kg, "W/kg", 4)))
+    if volume is not None:
+        rows.append(("loss in the core", format_quantity(res.loss_w(volume), "W", 4)))
+    if res.relaxation:
+        rows.append(("  of which relaxation", format_quantity(res.relaxation, "W/m3", 4)))
+    if res.n_minor_loops:
+        rows.append(("  from minor loops", f"{100 * res.minor_loop_share:.1f} % ({res.n_minor_loops} "
+                                            f"loop{'' if res.n_minor_loops == 1 else 's'})"))
+    if res.temperature is not None:
+        rows.append(("core temperature", f"{res.temperature:.4g} degC"))
+    if res.hysteresis is not None:
+        rows += [("separation model", format_quantity(res.separation_total, "W/m3", 4)),
+                 ("  hysteresis", format_quantity(res.hysteresis, "W/m3", 4)),
+                 ("  classical eddy", format_quantity(res.classical, "W/m3", 4)),
+                 ("  excess", format_quantity(res.excess, "W/m3", 4))]
+    elif res.classical is not None:
+        rows.append(("classical eddy part", format_quantity(res.classical, "W/m3", 4)))
+    return rows
+
+
 def run(args) -> int:
     """Run ``workbench shape``; returns the exit status."""
-    from workbench.analysis.capture import predict_loss
-    from workbench.analysis.shapes import make_shape
     from workbench.cli.main import emit_json
+    from workbench.engine import core_loss
 
-    b_peak = quantity(args.b_peak, "T", "--b-peak")
-    freq = quantity(args.freq, "Hz", "--freq")
-    duty = quantity(args.duty, "", "--duty")
-    settings = model_settings(args)
-    wave = make_shape(args.shape, b_peak=b_peak, freq=freq, duty=duty)
-    bd, total, hyst, classical, excess, name, warnings, notes = predict_loss(
-        wave, settings["material"], settings["steinmetz"], None, temperature=settings["temperature"],
-        thickness=settings["thickness"], resistivity=settings["resistivity"], skin_effect=settings["skin_effect"])
-    if bd is not None:
-        out = bd.to_dict()
-    else:
-        out = {"material": name, "frequency_hz": wave.freq, "b_peak_t": wave.b_peak, "flux_pp_t": wave.flux_pp,
-               "loss_w_m3": total, "loss_model": "iGSE", "classical_w_m3": classical,
-               "warnings": warnings, "notes": notes}
-    out.update(shape=args.shape, duty=duty if args.shape != "sine" else None)
+    spec, _, described = shape_or_capture(args)
+    cond = engine_conditions(args)
+    volume = quantity(args.volume, "m3", "--volume")
+    res = core_loss(spec, **cond)
+    out = res.to_dict()
+    out.update(shape=spec.shape, duty=described["duty"])
+    if volume is not None:
+        out.update(volume_m3=volume, loss_w=res.loss_w(volume))
     if args.json:
         emit_json(out)
         return 0
-    rows = [("material", name), ("shape", args.shape + ("" if args.shape == "sine" else f", duty {duty:g}")),
-            ("frequency", format_quantity(freq, "Hz", 4)), ("B_peak", format_quantity(b_peak, "T", 4)),
-            (f"loss ({out['loss_model']})", format_quantity(total, "W/m3", 4))]
-    if bd is not None:
-        rows.append(("loss per mass", format_quantity(bd.total_w_kg, "W/kg", 4)))
-    if bd is not None and bd.n_minor_loops:
-        rows.append(("  from minor loops", f"{100 * bd.minor_loop_share:.1f} % ({bd.n_minor_loops} loop{'' if bd.n_minor_loops == 1 else 's'})"))
-    if hyst is not None:
-        rows += [("separation model", format_quantity(hyst + classical + excess, "W/m3", 4)),
-                 ("  hysteresis", format_quantity(hyst, "W/m3", 4)), ("  classical eddy", format_quantity(classical, "W/m3", 4)),
-                 ("  excess", format_quantity(excess, "W/m3", 4))]
-    elif classical is not None:
-        rows.append(("classical eddy part", format_quantity(classical, "W/m3", 4)))
-    print(table(rows))
-    for w in out.get("warnings", []):
+    rows = [("material", res.material),
+            ("shape", spec.shape + ("" if spec.shape == "sine" else f", duty {spec.duty:g}")),
+            ("frequency", format_quantity(spec.freq, "Hz", 4)), ("B_peak", format_quantity(spec.b_peak, "T", 4))]
+    print(table(rows + loss_rows(res, volume)))
+    for w in res.warnings:
         print(f"warning: {w}")
-    for n in out.get("notes", []):
+    for n in res.notes:
         print(f"note: {n}")
     print(CAUTION)
     return 0
