@@ -113,7 +113,7 @@ def test_material_breakdown_matches_the_core_library_on_the_clean_waveform():
     for key in ("frequency_hz", "flux_pp_t", "b_peak_t", "periods_used", "loss_w_m3", "hysteresis_w_m3",
                 "classical_w_m3", "excess_w_m3", "warnings"):
         assert key in d
-    assert "measured_loss_w_m3" not in d  # only two-winding captures have it
+    assert "measured_loss_w_m3" not in d and "measured_method" not in d  # no current: nothing measured
 
 
 @pytest.mark.parametrize(
@@ -198,24 +198,45 @@ def test_two_winding_without_path_length_warns_and_skips_the_measurement():
     t, ch = _ellipse(50.0)
     res = analyse_record(t, ch, turns=10, sense_turns=5, area=1e-4)
     assert res.measured_loss is None and res.h is None
-    assert any("path length" in w for w in res.warnings)
+    assert any("--path-length" in w for w in res.warnings)
 
 
 # ---------------------------------------------------------------------------
 # warnings and errors
 # ---------------------------------------------------------------------------
+def _clip(y, level):
+    """What a recorder's range does: everything beyond +-level is recorded as +-level."""
+    return np.clip(y, -level, level)
+
+
 def test_clipped_channel_used_for_the_loss_is_an_error():
-    t, ch = _ellipse(50.0)
+    # a noisy sense voltage clipped at 80 % of its peak: noise everywhere but on the flat runs,
+    # entered at full slope (a recorder's range, common practice, no source)
+    t, ch = _ellipse(50.0, noise=0.01)
+    ch["v_sense"] = _clip(ch["v_sense"], 0.8 * np.abs(ch["v_sense"]).max())
     with pytest.raises(ValueError, match="v_sense.*clipped"):
-        analyse_record(t, ch, source="bench.csv", clipped=("v_sense",), turns=10, area=1e-4, path_length=0.1)
+        analyse_record(t, ch, source="bench.csv", clipped=("v_sense",), turns=10, sense_turns=5, area=1e-4,
+                       path_length=0.1)
 
 
 def test_clipped_channel_not_used_is_a_warning():
     ref = wf.sine(0.1, 1e3)
     t, ch = _capture(ref, fs=1e6, n_periods=5.5, kind="b", noise=0.001, offset=0.0)
-    ch["i"] = np.sin(t)  # an extra channel, not used for a flux capture
+    rng = np.random.default_rng(4)
+    ch["i"] = _clip(np.sin(2 * np.pi * 1e3 * t) + rng.normal(0, 0.01, t.size), 0.7)  # an extra, clipped channel
     res = analyse_record(t, ch, clipped=("i",))
     assert any("'i' is clipped" in w for w in res.warnings)
+
+
+def test_ideal_square_voltage_from_a_simulator_is_not_clipped():
+    # a noise-free square winding voltage (the textbook converter waveform, what a simulator
+    # writes): the flux is a triangle of swing V T / (2 N A) (Faraday's law, closed form)
+    freq, volts, n, area = 100e3, 12.0, 8, 50e-6
+    t = np.arange(0, 10.5 / freq, 1 / (400 * freq))
+    v = np.where(np.mod(t * freq, 1.0) < 0.5, volts, -volts)
+    res = analyse_record(t, {"v": v}, clipped=("v",), turns=n, area=area, steinmetz=FERRITE_SET)
+    assert res.flux_pp == pytest.approx(volts / (2 * freq * n * area), rel=0.01)
+    assert not any("clipped" in w for w in res.warnings)
 
 
 def test_too_few_periods_warns():

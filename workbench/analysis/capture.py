@@ -1,45 +1,45 @@
-"""Captured waveforms -> one averaged period of flux, measured loss and predicted loss.
+"""Capture analysis: a record that has been read -> one averaged period of flux, measured and model loss.
 
-The question this module answers: "my converter is running and I captured the
-winding voltage (and maybe the current): how much is the core losing, and does
-the model agree?" Three kinds of capture are handled:
+The question answered: "my converter is running and I captured the winding voltage
+(and maybe the current): how much is the core losing, and does the model agree?"
+
+Where the steps live (one copy each):
+
+* :mod:`workbench.capture.steady_state` -- even grid (gaps refused), period detection,
+  whole-period folding, repetition over 2 or 3 periods (subharmonics), denoising;
+* :mod:`workbench.capture.flux` -- voltage to flux (Faraday's law);
+* :mod:`workbench.capture.measured` -- measured loss, two-winding and single-winding V-I;
+* :mod:`workbench.capture.clipping` -- clipping judged on evidence of a recorder's range;
+* :mod:`workbench.engine` -- the model loss (the only place a loss is decided);
+* this module -- the pipeline that joins them, one function per step, and the shape
+  classification of the averaged period. It sits above the engine; the steps below
+  it import only numpy.
+
+Kinds of capture (``kind``: how B was obtained):
 
 ``"flux"``
-    Flux density ``b`` [T] directly, or magnetic flux ``flux`` [Wb] divided by the
-    effective area.
+    Flux density ``b`` [T], or magnetic flux ``flux`` [Wb] divided by the area.
 ``"voltage"``
-    A winding voltage ``v`` [V], integrated to B with the turns and the effective
-    area (Faraday's law); the probe offset is removed with the mean over whole
-    periods.
+    A winding voltage ``v`` [V] integrated to B with the turns and the area. With the
+    current ``i`` of the same winding, the loss is also measured (single-winding V-I
+    method, ``measured_method = "single-winding"``).
 ``"two-winding"``
-    Primary current ``i`` [A] and sense-winding voltage ``v_sense`` [V]: B from the
-    sense voltage (turns N2, area A_e), H = N1 i1 / l_e, the B-H loop and the
-    measured loss density
+    Excitation current ``i`` [A] and the voltage of a sense winding (``v_sense``, or
+    ``v`` when ``sense_turns`` is given): B from the sense voltage, H = N1 i / l_e,
+    and the measured loss (``measured_method = "two-winding"``).
 
-    .. math:: P = \\frac{N_1}{N_2}\\,\\frac{1}{V_e\\,mT}\\int_0^{mT} v_2\\,i_1\\,dt
-              = \\frac{1}{T}\\oint H\\,dB
-
-    over m whole periods.
-
-Phase error between the probes
-------------------------------
-In a two-winding measurement the loss is the small in-phase part of a large,
-mostly reactive product v2 i1. A time skew between the voltage and current
-probes (unequal cable or probe delays, a current probe's own delay) turns part
-of the reactive power into apparent loss: a skew :math:`\\tau` shifts the phase
-of harmonic n by :math:`2\\pi n f \\tau`, and the error in the loss is about
-:math:`Q\\,2\\pi f\\tau` where Q is the reactive volt-amperes. For a core with a
-high quality factor (ferrite at low flux: :math:`Q/P` of 10 to 100) one
-nanosecond at 100 kHz already moves the result by several percent. The
-analysis therefore reports the relative change of the measured loss for a 1 ns
-delay of the current (``skew_sensitivity_per_ns``); deskew the probes (a common
-reference edge) before trusting the measured figure.
+Phase error between the probes: the loss is the small in-phase part of a large,
+mostly reactive product v i, so a time skew between the probes turns reactive
+power into apparent loss (about :math:`Q\\,2\\pi f\\tau`). A known skew is removed
+with ``deskew`` (the current is shifted before the product); the result also
+reports the relative change of the measured loss for a further 1 ns delay of the
+current (``skew_sensitivity_per_ns``).
 
 Safety: capturing converter waveforms means probing live circuits at hazardous
 voltages, and a loss test runs the core hot. Use rated differential probes and
-isolation, let cores cool before handling, and follow local electrical codes
-and your site's licensed practice. Results are estimates; verify the
-temperature rise by test.
+isolation, let cores cool before handling, and follow local electrical codes and
+your site's licensed practice. Results are estimates; verify the temperature rise
+by test.
 
 References
 ----------
@@ -49,9 +49,6 @@ References
 .. [2] D. Hou, M. Mu, F. C. Lee, Q. Li, "New high-frequency core loss measurement
    method with partial cancellation concept", IEEE Trans. Power Electron.
    32(4), pp. 2987-2994, 2017 (phase-discrepancy error of the two-winding method).
-.. [3] K. Venkatachalam, C. R. Sullivan, T. Abdallah, H. Tacca, "Accurate
-   prediction of ferrite core loss with nonsinusoidal waveforms using only
-   Steinmetz parameters", IEEE COMPEL 2002.
 """
 from __future__ import annotations
 
@@ -59,83 +56,58 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from workbench import models
-from workbench.analysis.breakdown import LossBreakdown, breakdown
-from workbench.analysis.steady_state import (
+from workbench.capture.clipping import clipping_evidence
+from workbench.capture.flux import flux_density
+from workbench.capture.measured import measured_loss
+from workbench.capture.steady_state import (
     denoise_period,
     detect_period,
     fold_periods,
+    repetition,
     uniform_grid,
 )
+from workbench.checks import check_quantity, finite_number
+from workbench.engine import BareSteinmetz, LossResult, core_loss
 from workbench.waveforms import NOISE_THRESHOLD_SIGMAS, FluxWaveform, estimate_noise
 
 __all__ = [
-    "SteinmetzSet",
+    "KINDS",
+    "METHODS",
+    "WAVEFORM_CLASSES",
     "CaptureAnalysis",
+    "SteinmetzSet",
     "analyse_capture",
-    "analyse_record",
     "analyse_file",
+    "analyse_record",
     "classify_waveform",
     "flat_mask",
     "flatten_dwells",
-    "rising_fraction",
     "measured_loss",
     "predict_loss",
-    "KINDS",
-    "WAVEFORM_CLASSES",
+    "rising_fraction",
 ]
 
 KINDS = ("flux", "voltage", "two-winding")
+METHODS = ("two-winding", "single-winding")
 WAVEFORM_CLASSES = ("sine-like", "triangular", "trapezoidal", "other")
 
 #: Fewer whole periods than this gives a warning.
 MIN_PERIODS = 3
 #: Period-to-period spread (relative to peak-to-peak) above which we warn.
 SPREAD_WARNING = 0.02
+#: A repetition over 2 or 3 periods that changes the folded flux by more than this is acted on.
+SUBHARMONIC_CHANGE = 0.01
 #: Samples per averaged period are capped here (longer periods are read at this resolution).
 MAX_SAMPLES_PER_PERIOD = 16384
+#: Most samples read for the period-to-period spread of an integrated voltage.
+SPREAD_POINTS = 1 << 18
 #: Probe skew used for the sensitivity figure [s].
 SKEW = 1e-9
 #: Measured / model ratio outside this band gives a note.
 RATIO_BAND = (0.5, 2.0)
 
-
-@dataclass(frozen=True)
-class SteinmetzSet:
-    """A bare Steinmetz set given directly, without a library material.
-
-    Parameters
-    ----------
-    k : float
-        Coefficient [W/m^3 for f in Hz and B_peak in T].
-    alpha : float
-        Frequency exponent [-].
-    beta : float
-        Flux-density exponent [-].
-    """
-
-    k: float
-    alpha: float
-    beta: float
-
-    def __post_init__(self):
-        for name in ("k", "alpha", "beta"):
-            value = getattr(self, name)
-            try:
-                x = float(value)
-            except (TypeError, ValueError):
-                raise ValueError(f"Steinmetz {name} must be a number, got {value!r}") from None
-            if not np.isfinite(x) or x <= 0:
-                raise ValueError(f"Steinmetz {name} must be finite and positive, got {value!r}")
-            object.__setattr__(self, name, x)
-        if not 0.5 <= self.alpha <= 3.5:
-            raise ValueError(f"Steinmetz alpha = {self.alpha!r} is implausible (expected 1 to 3)")
-        if not 1.0 <= self.beta <= 4.5:
-            raise ValueError(f"Steinmetz beta = {self.beta!r} is implausible (expected 1.5 to 3.5)")
-
-    @property
-    def name(self) -> str:
-        return f"Steinmetz k={self.k:g}, alpha={self.alpha:g}, beta={self.beta:g}"
+#: A bare Steinmetz set (the engine's type; kept under this name for older code).
+SteinmetzSet = BareSteinmetz
 
 
 @dataclass(frozen=True)
@@ -149,7 +121,7 @@ class CaptureAnalysis:
     kind : {"flux", "voltage", "two-winding"}
         How B was obtained.
     freq : float
-        Fundamental frequency [Hz].
+        Fundamental frequency of the folded period [Hz].
     periods_used : int
         Whole periods averaged [-].
     periods_in_record : float
@@ -160,9 +132,7 @@ class CaptureAnalysis:
     waveform : FluxWaveform
         The averaged, denoised period of flux.
     noise : float
-        Standard deviation of the noise left on the averaged flux [T]: the larger
-        of the sample-to-sample (white) estimate and the period-to-period scatter
-        divided by sqrt(periods - 1).
+        Standard deviation of the noise left on the averaged flux [T].
     threshold : float
         Reversal threshold used for the minor loops, 12 times ``noise`` [T].
     harmonics_kept : int
@@ -175,9 +145,9 @@ class CaptureAnalysis:
         One of :data:`WAVEFORM_CLASSES`.
     h : ndarray or None
         Field strength H over the averaged period, on ``waveform.t`` [A/m]
-        (two-winding captures with a path length).
-    model : LossBreakdown or None
-        Model loss for a library material.
+        (captures with a current and a path length).
+    model : workbench.engine.LossResult or None
+        The engine's result for the averaged period.
     model_loss : float or None
         Model total (iGSE or i2GSE) [W/m^3].
     model_name : str
@@ -185,11 +155,17 @@ class CaptureAnalysis:
     hysteresis, classical, excess : float or None
         Separation parts [W/m^3] where available.
     measured_loss : float or None
-        Measured loss density of a two-winding capture [W/m^3].
+        Measured loss density [W/m^3].
+    measured_method : {"two-winding", "single-winding"} or None
+        How the loss is measured (captures with a current channel); ``measured_loss``
+        is None when the volume is missing.
     skew_sensitivity : float or None
-        Relative change of the measured loss for the current delayed by 1 ns [1/ns].
+        Relative change of the measured loss for the current delayed by a further 1 ns [1/ns].
     volume : float or None
-        Effective core volume used [m^3].
+        Effective core volume used [m^3] (given, or A_e l_e).
+    inputs : dict
+        The settings as given (turns, sense turns, area, volume, path length, winding
+        resistance, deskew, material, temperature, overrides), SI-suffixed keys.
     warnings, notes : tuple of str
         Things to check, and remarks.
     """
@@ -208,15 +184,17 @@ class CaptureAnalysis:
     duty: float
     waveform_class: str
     h: np.ndarray | None = None
-    model: LossBreakdown | None = None
+    model: LossResult | None = None
     model_loss: float | None = None
     model_name: str = ""
     hysteresis: float | None = None
     classical: float | None = None
     excess: float | None = None
     measured_loss: float | None = None
+    measured_method: str | None = None
     skew_sensitivity: float | None = None
     volume: float | None = None
+    inputs: dict = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
     notes: tuple[str, ...] = field(default_factory=tuple)
 
@@ -236,6 +214,16 @@ class CaptureAnalysis:
         if self.measured_loss is None or not self.model_loss:
             return None
         return self.measured_loss / self.model_loss
+
+    @property
+    def loss_w(self) -> float | None:
+        """Model loss in the core [W], when the volume is known."""
+        return None if self.model_loss is None or self.volume is None else self.model_loss * self.volume
+
+    @property
+    def measured_loss_w(self) -> float | None:
+        """Measured loss in the core [W]."""
+        return None if self.measured_loss is None or self.volume is None else self.measured_loss * self.volume
 
     def to_dict(self) -> dict:
         """Plain dict with SI-suffixed keys, ready for JSON (no arrays)."""
@@ -258,24 +246,29 @@ class CaptureAnalysis:
             "waveform_class": self.waveform_class,
             "model": self.model_name or None,
             "loss_w_m3": self.model_loss,
+            "loss_w": self.loss_w,
             "classical_w_m3": self.classical,
+            "volume_m3": self.volume,
+            "inputs": dict(self.inputs),
             "warnings": list(self.warnings),
             "notes": list(self.notes),
         }
         if self.model is not None:
             out["loss_model"] = self.model.total_model
+            out["temperature_c"] = self.model.temperature
             out["n_minor_loops"] = self.model.n_minor_loops
             out["minor_loop_share"] = self.model.minor_loop_share
             out["loss_w_kg"] = self.model.total_w_kg
         if self.hysteresis is not None:
             out["hysteresis_w_m3"] = self.hysteresis
             out["excess_w_m3"] = self.excess
-        if self.kind == "two-winding":
+        if self.measured_method is not None:  # captures with a current: the measurement, or null where it could not be made
+            out["measured_method"] = self.measured_method
             out["measured_loss_w_m3"] = self.measured_loss
+            out["measured_loss_w"] = self.measured_loss_w
             out["measured_to_model_ratio"] = self.ratio
             out["skew_sensitivity_per_ns"] = self.skew_sensitivity
             out["h_peak_a_m"] = None if self.h is None else float(0.5 * np.ptp(self.h))
-            out["volume_m3"] = self.volume
         return out
 
 
@@ -467,160 +460,383 @@ def classify_waveform(waveform: FluxWaveform, threshold: float | None = None) ->
     return "other"
 
 
-def _periodic_integral(v: np.ndarray, period: float) -> np.ndarray:
-    """Integral over one period of an evenly sampled periodic signal, mean removed [unit*s].
-
-    The mean of ``v`` (a probe offset; a winding's average voltage is zero in
-    steady state) is removed first, then the cumulative trapezoid sum, then the
-    mean of the result.
-    """
-    n = v.size
-    dt = period / n
-    vv = v - v.mean()
-    x = np.concatenate(([0.0], np.cumsum(0.5 * (vv[1:] + vv[:-1]) * dt)))
-    return x - x.mean()
-
-
-def measured_loss(t, v_sense, current, period: float, *, turns: float, sense_turns: float, volume: float,
-                  skew: float = 0.0) -> tuple[float, int]:
-    """Loss density of a two-winding measurement over whole periods.
-
-    Parameters
-    ----------
-    t : array_like
-        Sample times, evenly spaced [s].
-    v_sense : array_like
-        Sense-winding voltage [V].
-    current : array_like
-        Primary (excitation) current [A].
-    period : float
-        Fundamental period [s].
-    turns : float
-        Primary turns N1 [-].
-    sense_turns : float
-        Sense-winding turns N2 [-].
-    volume : float
-        Effective core volume V_e [m^3].
-    skew : float
-        Delay applied to the current before the product [s] (for the skew
-        sensitivity; 0 for the measurement).
-
-    Returns
-    -------
-    loss : float
-        Loss density [W/m^3].
-    periods : int
-        Whole periods used [-].
-
-    Notes
-    -----
-    .. math:: P = \\frac{N_1}{N_2}\\,\\frac{1}{V_e\\,mT}\\int_{t_0}^{t_0+mT}
-              (v_2 - \\bar v_2)\\,i_1\\,dt
-
-    over the m whole periods in the record, with the mean (probe offset) of the
-    sense voltage over those periods removed, since the average voltage of a
-    winding in steady state is zero. The product is averaged on the folded
-    period grid, which integrates exactly whole periods.
-
-    References
-    ----------
-    .. [1] IEC 60404-6:2003, two-winding (wattmeter) method.
-    """
-    t = np.asarray(t, dtype=float)
-    v = np.asarray(v_sense, dtype=float)
-    i = np.asarray(current, dtype=float)
-    if skew:
-        i = np.interp(t - skew, t, i)
-    step = (t[-1] - t[0]) / (t.size - 1)
-    samples = min(max(16, int(round(period / step))), 4 * MAX_SAMPLES_PER_PERIOD)
-    fold = fold_periods(t, np.vstack([v, i, v * i]), period, samples=samples)
-    v_mean, i_mean, p_mean = (float(row.mean()) for row in fold.mean)
-    power = p_mean - v_mean * i_mean
-    return (turns / sense_turns) * power / volume, fold.n_periods
 
 
 # ---------------------------------------------------------------------------
-# model loss
+# model loss: the engine only
 # ---------------------------------------------------------------------------
 def predict_loss(waveform, material, steinmetz, threshold, *, temperature=None, thickness=None, resistivity=None,
                  skin_effect=True):
-    """Model loss of one period of flux for a library material or a bare Steinmetz set.
+    """Model loss of one period of flux, from :func:`workbench.engine.core_loss` (kept for older callers).
 
     Parameters
     ----------
     waveform : FluxWaveform
         One period of flux.
     material : workbench.materials.Material or None
-        Library material: :func:`workbench.analysis.breakdown.breakdown` is used.
+        Library material.
     steinmetz : SteinmetzSet or None
-        Bare Steinmetz set (when ``material`` is None): iGSE with minor loops.
+        Bare Steinmetz set (when ``material`` is None).
     threshold : float or None
         Reversal threshold [T]; None derives it from the data.
     temperature : float, optional
-        Core temperature [degC] (materials).
+        Core temperature [degC].
     thickness, resistivity : float, optional
-        Lamination thickness [m] and resistivity [ohm m]; with a bare set, both
-        are needed for the classical eddy part (no skin effect).
+        Lamination thickness [m] and resistivity [ohm m] overrides.
     skin_effect : bool
-        Skin effect in the classical part (materials).
+        Skin effect in the classical part.
 
     Returns
     -------
     tuple
-        ``(breakdown or None, total, hysteresis, classical, excess, model name,
+        ``(LossResult or None, total, hysteresis, classical, excess, model name,
         warnings, notes)``; loss densities in W/m^3, None where not computed.
-
-    Notes
-    -----
-    iGSE [1]_: :math:`P = \\frac{1}{T}\\int_0^T k_i |dB/dt|^{\\alpha} (\\Delta B)^{\\beta-\\alpha} dt`,
-    loop by loop.
-
-    References
-    ----------
-    .. [1] K. Venkatachalam et al., IEEE COMPEL 2002.
     """
-    if material is not None:
-        bd = breakdown(waveform, material, temperature=temperature, thickness=thickness,
-                       resistivity=resistivity, skin_effect=skin_effect, threshold=threshold)
-        return bd, bd.total, bd.hysteresis, bd.classical, bd.excess, material.name, list(bd.warnings), list(bd.notes)
-    if steinmetz is not None:
-        res = models.igse_loops(waveform, steinmetz.k, steinmetz.alpha, steinmetz.beta, threshold=threshold)
-        classical = None
-        notes = ["bare Steinmetz set: no valid range, saturation or separation data to check against"]
-        if thickness is not None and resistivity is not None:
-            classical = float(models.classical_eddy_waveform(waveform, resistivity, thickness, None))
-            notes.append("classical eddy part from the given thickness and resistivity, without skin effect")
-        return None, float(res.total), None, classical, None, steinmetz.name, [], notes
-    return None, None, None, None, None, "", [
-        "no material or Steinmetz set given: model loss not computed"], []
+    chosen = material if material is not None else steinmetz
+    if chosen is None:
+        return None, None, None, None, None, "", ["no material or Steinmetz set given: model loss not computed"], []
+    r = core_loss(waveform, chosen, temperature=temperature, thickness=thickness, resistivity=resistivity,
+                  skin_effect=skin_effect, threshold=threshold)
+    return r, r.total, r.hysteresis, r.classical, r.excess, r.material, list(r.warnings), list(r.notes)
 
 
 # ---------------------------------------------------------------------------
-# the pipeline
+# the pipeline, one step per function
 # ---------------------------------------------------------------------------
-def _positive(value, name, source):
-    if value is None:
-        return None
+@dataclass(frozen=True)
+class _Settings:
+    """Checked settings of one analysis (SI), and the warnings the checks gave."""
+
+    turns: float | None
+    area: float | None
+    volume: float | None
+    path_length: float | None
+    sense_turns: float | None
+    winding_resistance: float | None
+    deskew: float | None
+    temperature: float | None
+    thickness: float | None
+    resistivity: float | None
+    warnings: tuple[str, ...]
+
+
+def _check_settings(source, *, turns, area, volume, path_length, sense_turns, winding_resistance, deskew,
+                    temperature, thickness, resistivity, has_model) -> _Settings:
+    """Every number checked against the range where it is plausible (refused or warned, see workbench.checks)."""
+    warnings: list[str] = []
+
+    def check(value, kind, name):
+        if value is None:
+            return None
+        x, w = check_quantity(value, kind, name=name, source=source)
+        warnings.extend(w)
+        return x
+
+    turns = check(turns, "turns", "turns")
+    sense_turns = check(sense_turns, "turns", "sense turns")
+    area = check(area, "area", "area")
+    volume = check(volume, "volume", "volume")
+    path_length = check(path_length, "path_length", "path length")
+    thickness = check(thickness, "thickness", "thickness")
+    resistivity = check(resistivity, "resistivity", "resistivity")
+    if temperature is not None:
+        x, w = check_quantity(temperature, "temperature", name="temperature", source=source)
+        temperature = x
+        if not has_model:  # with a material the engine judges the temperature against its own limits
+            warnings.extend(w)
+    if winding_resistance is not None:
+        winding_resistance = finite_number(winding_resistance, "winding resistance", unit="ohm", source=source,
+                                           minimum=0.0)
+    if deskew is not None:
+        deskew = finite_number(deskew, "deskew", unit="s", source=source)
+    return _Settings(turns, area, volume, path_length, sense_turns, winding_resistance, deskew, temperature,
+                     thickness, resistivity, tuple(warnings))
+
+
+@dataclass(frozen=True)
+class _Plan:
+    """Which channels are used and how: kind, flux channel, current channel, method, turns of the voltage."""
+
+    kind: str
+    flux_channel: str
+    current: str | None
+    method: str | None
+    flux_turns: float | None
+    sense_turns: float | None
+
+
+def _plan(chans, s: _Settings, source) -> tuple[_Plan, list[str]]:
+    """Decide what the capture is from its channels and the options given; refuse what cannot be honoured."""
+    names = ", ".join(sorted(chans)) or "no channels"
+    warnings: list[str] = []
+    has_i = "i" in chans
+    voltage = "v_sense" if "v_sense" in chans else ("v" if "v" in chans else None)
+    if s.sense_turns is not None:
+        if voltage is None or not has_i:
+            missing = "a current channel (i)" if voltage is not None else "a voltage and a current channel"
+            raise ValueError(
+                f"{source}: --sense-turns means a two-winding capture (voltage of the sense winding, current of "
+                f"the excited one), which needs {missing}; the file has {names}"
+            )
+        plan = _Plan("two-winding", voltage, "i", "two-winding", s.sense_turns, s.sense_turns)
+    elif "v_sense" in chans and has_i:
+        if s.turns is None:
+            raise ValueError(f"{source}: a two-winding capture needs the primary turns (--turns)")
+        warnings.append(f"sense-winding turns not given: taken equal to the primary turns ({s.turns:g})")
+        plan = _Plan("two-winding", "v_sense", "i", "two-winding", s.turns, s.turns)
+    elif "b" in chans or "flux" in chans:
+        plan = _Plan("flux", "b" if "b" in chans else "flux", None, None, None, None)
+    elif voltage is not None:
+        single = voltage == "v" and has_i
+        plan = _Plan("voltage", voltage, "i" if single else None, "single-winding" if single else None,
+                     s.turns, None)
+    else:
+        raise ValueError(f"{source}: no flux channel: need b, flux, v, or i with v_sense; the file has {names}")
+    if s.winding_resistance is not None and plan.method != "single-winding":
+        raise ValueError(
+            f"{source}: --winding-resistance applies to a single-winding capture (voltage and current of one "
+            f"winding); this one is {plan.method or plan.kind} (channels {names})"
+        )
+    if s.deskew is not None and plan.current is None:
+        raise ValueError(f"{source}: --deskew shifts the current against the voltage; this capture uses no "
+                         f"current channel (channels {names})")
+    if plan.kind == "flux" and plan.flux_channel == "flux" and s.area is None:
+        raise ValueError(f"{source}: a flux [Wb] capture needs the effective area (--area)")
+    if plan.kind != "flux" and (s.turns is None or s.area is None):
+        what = "the primary turns (--turns)" if plan.kind == "two-winding" else "the turns (--turns)"
+        raise ValueError(f"{source}: a {plan.kind} capture needs {what} and the effective area (--area)")
+    if "i" in chans and plan.current is None:
+        warnings.append("the current channel is not used: a flux channel gives B directly")
+    return plan, warnings
+
+
+def _checked_channels(t, chans, used, source) -> None:
+    n = np.asarray(t).size
+    for name in used:
+        y = chans[name]
+        if y.size != n:
+            raise ValueError(f"{source}: channel {name!r} has {y.size} samples, time has {n}")
+        bad = ~np.isfinite(y)
+        if bad.any():
+            j = int(np.argmax(bad))
+            raise ValueError(f"{source}: channel {name!r} has a non-finite value at sample {j + 1}: {y[j]!r}")
+        if np.ptp(y) == 0:
+            raise ValueError(f"{source}: channel {name!r} is constant ({y[0]!r}): no waveform")
+
+
+def _clipping(chans, used, flagged, source) -> list[str]:
+    """Channels the reader flagged are refused only on evidence of a recorder's range."""
+    warnings = []
+    for name in flagged:
+        if name not in chans:
+            continue
+        ev = clipping_evidence(chans[name], noise=estimate_noise(chans[name]))
+        if not ev.clipped:
+            continue
+        if name in used:
+            raise ValueError(
+                f"{source}: channel {name!r} is clipped ({ev.reason}); the loss would be wrong: capture again "
+                "with more vertical range"
+            )
+        warnings.append(f"channel {name!r} is clipped but not used for the loss")
+    return warnings
+
+
+def _on_grid(t, chans, used, source):
+    """The used channels on one even grid: (grid, {name: samples}, warnings)."""
+    rows, grid, resampled = {}, None, False
+    for name in used:
+        try:
+            grid, y, r = uniform_grid(t, chans[name])
+        except ValueError as exc:
+            raise ValueError(f"{source}: {exc}") from None
+        rows[name] = y[0]
+        resampled = resampled or r
+    warnings = ["time stamps are unevenly spaced: the record was interpolated onto an even grid"] if resampled else []
+    return grid, rows, warnings
+
+
+def _core_voltage(rows, plan: _Plan, s: _Settings):
+    """The voltage that drives the core: the flux channel, less R i for a single winding with a known R."""
+    v = rows[plan.flux_channel]
+    if plan.method == "single-winding" and s.winding_resistance:
+        return v - s.winding_resistance * rows["i"]
+    return v
+
+
+def _flux_signal(tg, rows, plan: _Plan, s: _Settings):
+    """Flux over the whole record, the signal the period is found on [T]."""
+    step = (tg[-1] - tg[0]) / (tg.size - 1)
+    if plan.kind == "flux":
+        y = rows[plan.flux_channel]
+        return y / s.area if plan.flux_channel == "flux" else y
+    return flux_density(step, _core_voltage(rows, plan, s), turns=plan.flux_turns, area=s.area)
+
+
+def _find_period(tg, signal, source):
+    """(period [s], periods in the record, warnings): detection, then the check over 2 and 3 periods."""
     try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{source}: {name} must be a number, got {value!r}") from None
-    if not np.isfinite(x) or x <= 0:
-        raise ValueError(f"{source}: {name} must be finite and positive, got {value!r}")
-    return x
+        est = detect_period(tg, signal, noise=estimate_noise(signal))
+    except ValueError as exc:
+        raise ValueError(f"{source}: {exc}") from None
+    if est.n_periods < 1.0:
+        raise ValueError(f"{source}: the record spans less than one period ({est.n_periods:.2f})")
+    period = est.period
+    step = (tg[-1] - tg[0]) / (tg.size - 1)
+    samples = min(max(16, round(period / step)), MAX_SAMPLES_PER_PERIOD)
+    rep = repetition(tg, signal, period, samples=samples)
+    warnings = []
+    excess = rep.change - rep.allowance
+    if rep.multiple > 1 and excess > SUBHARMONIC_CHANGE:
+        if rep.periods >= 2:
+            warnings.append(
+                f"the flux repeats only every {rep.multiple} periods of {period:.6g} s (consecutive periods "
+                f"differ by {100 * rep.change:.2g} % of the swing): folded over {rep.multiple} periods, "
+                f"frequency {1 / (rep.multiple * period):.6g} Hz"
+            )
+            period *= rep.multiple
+        else:
+            warnings.append(
+                f"consecutive periods differ by {100 * rep.change:.2g} % of the swing (a subharmonic at 1/"
+                f"{rep.multiple} of {1 / period:.6g} Hz), but the record holds fewer than 2 of its periods: the "
+                "fold over one period is off by about that much; capture a longer record"
+            )
+    return period, float(est.n_periods * est.period / period), warnings
 
 
-def _choose_kind(channels, source):
-    if "i" in channels and "v_sense" in channels:
-        return "two-winding"
-    if "b" in channels or "flux" in channels:
-        return "flux"
-    if "v" in channels or "v_sense" in channels:
-        return "voltage"
-    raise ValueError(
-        f"{source}: no flux channel: need b, flux, v, or i with v_sense; the file has "
-        f"{', '.join(sorted(channels)) or 'no channels'}"
-    )
+def _flux_spread(tg, v, period, samples, n_periods, turns, area) -> float:
+    """Spread of the per-period flux (each period's voltage integrated on its own), relative to its pp."""
+    if n_periods < 2:
+        return 0.0
+    used = np.unique(np.round(np.linspace(0, n_periods - 1, max(2, min(n_periods, SPREAD_POINTS // samples)))))
+    phase = np.arange(samples) * (period / samples)
+    dt = period / samples
+    rows = np.array([flux_density(dt, np.interp(tg[0] + j * period + phase, tg, v), turns=turns, area=area,
+                                  periodic=True) for j in used.astype(int)])
+    avg = rows.mean(axis=0)
+    pp = float(np.ptp(avg))
+    return 0.0 if pp == 0 else float(np.sqrt(np.mean((rows - avg) ** 2)) / pp)
+
+
+@dataclass(frozen=True)
+class _Folded:
+    waveform: FluxWaveform
+    n_periods: int
+    spread: float
+    noise: float
+    threshold: float
+    harmonics_kept: int
+    denoised: bool
+    waveform_class: str
+    current: np.ndarray | None
+    notes: tuple[str, ...]
+
+
+def _fold_flux(tg, rows, plan: _Plan, s: _Settings, period, source) -> _Folded:
+    """Whole periods averaged, the voltage integrated over the averaged period, noise, threshold, denoising."""
+    step = (tg[-1] - tg[0]) / (tg.size - 1)
+    samples = min(max(16, round(period / step)), MAX_SAMPLES_PER_PERIOD)
+    signal = rows[plan.flux_channel] if plan.kind == "flux" else _core_voltage(rows, plan, s)
+    try:
+        fold = fold_periods(tg, signal, period, samples=samples)
+        current = fold_periods(tg, rows[plan.current], period, samples=samples).mean[0] if plan.current else None
+    except ValueError as exc:
+        raise ValueError(f"{source}: {exc}") from None
+    if plan.kind == "flux":
+        b_avg = fold.mean[0] / (s.area if plan.flux_channel == "flux" else 1.0)
+        spread = float(fold.spread[0])
+    else:
+        b_avg = flux_density(period / samples, fold.mean[0], turns=plan.flux_turns, area=s.area, periodic=True)
+        spread = _flux_spread(tg, signal, period, samples, fold.n_periods, plan.flux_turns, s.area)
+    wander = spread * float(np.ptp(b_avg)) / np.sqrt(max(fold.n_periods - 1, 1))
+    white = estimate_noise(b_avg)
+    # noise left on the average: the white-noise estimate or, where larger, the period-to-period
+    # scatter over sqrt(J - 1) (integrated voltage noise wanders slowly)
+    noise = max(white, wander) if fold.n_periods > 1 else white
+    threshold = max(NOISE_THRESHOLD_SIGMAS * noise, 1e-12 * float(np.ptp(b_avg)))
+    dn = denoise_period(b_avg, noise=white)
+    waveform = FluxWaveform(fold.phase, dn.values, period)
+    shape_class = classify_waveform(waveform, threshold)
+    notes = []
+    if shape_class == "trapezoidal":
+        waveform, n_dwells = flatten_dwells(waveform)
+        if n_dwells:
+            notes.append(f"{n_dwells} zero-voltage intervals set exactly flat (|dB/dt| below 10 % of its peak)")
+    return _Folded(waveform, fold.n_periods, spread, float(noise), float(threshold), int(dn.harmonics_kept),
+                   bool(dn.filtered), shape_class, current, tuple(notes))
+
+
+def _steady_state_warnings(f: _Folded) -> list[str]:
+    out = []
+    if f.n_periods < MIN_PERIODS:
+        out.append(f"only {f.n_periods} whole period(s) in the record (at least {MIN_PERIODS} recommended): "
+                   "noise and drift are poorly averaged")
+    if f.spread > SPREAD_WARNING:
+        out.append(f"periods differ by {100 * f.spread:.1f} % RMS of the peak-to-peak flux: "
+                   "the converter may not be in steady state, or the period is not constant")
+    return out
+
+
+@dataclass(frozen=True)
+class _Measured:
+    loss: float | None
+    sensitivity: float | None
+    h: np.ndarray | None
+    volume: float | None
+    warnings: tuple[str, ...]
+    notes: tuple[str, ...]
+
+
+def _measure(tg, rows, plan: _Plan, s: _Settings, period, folded: _Folded, model_total) -> _Measured:
+    """Measured loss (two-winding or single-winding V-I), its skew sensitivity, and H over the period."""
+    warnings: list[str] = []
+    notes: list[str] = []
+    volume = s.volume if s.volume is not None else (
+        s.area * s.path_length if s.area is not None and s.path_length is not None else None)
+    if plan.method is None:
+        return _Measured(None, None, None, volume, (), ())
+    deskew = s.deskew or 0.0
+    h = None
+    if s.path_length is not None:
+        phase = folded.waveform.t
+        # the current read `deskew` later (periodic within the averaged period)
+        i_f = np.interp((phase + deskew) % period, np.append(phase, period),
+                        np.append(folded.current, folded.current[0]))
+        h = s.turns * i_f / s.path_length
+    if volume is None:
+        warnings.append("no core volume (--volume, or --path-length with --area): the measured loss is not computed")
+        return _Measured(None, None, h, None, tuple(warnings), ())
+    step = (tg[-1] - tg[0]) / (tg.size - 1)
+    v, i = rows[plan.flux_channel], rows["i"]
+    kwargs = {"volume": volume, "turns": s.turns,
+              "sense_turns": plan.sense_turns if plan.method == "two-winding" else None,
+              "winding_resistance": s.winding_resistance or 0.0}
+    meas, _ = measured_loss(step, v, i, period, skew=-deskew, **kwargs)
+    skewed, _ = measured_loss(step, v, i, period, skew=-deskew + SKEW, **kwargs)
+    sens = (skewed - meas) / meas if meas != 0 else None
+    if plan.method == "single-winding" and s.winding_resistance is None:
+        warnings.append("single-winding measurement without --winding-resistance: the measured loss includes the "
+                        "winding's copper loss (I_rms^2 R and more at high frequency)")
+    if s.deskew:
+        notes.append(f"current shifted by {s.deskew * 1e9:.3g} ns against the voltage (deskew) before the loss integral")
+    if meas <= 0:
+        warnings.append(f"measured loss is not positive ({meas:.4g} W/m^3): check the probe polarity and skew")
+    if sens is not None and abs(sens) > 0.02:
+        warnings.append(f"the measured loss changes by {100 * sens:+.1f} % per ns of probe skew: deskew the "
+                        "voltage and current probes (--deskew) before trusting it")
+    if model_total and meas > 0:
+        r = meas / model_total
+        if not RATIO_BAND[0] <= r <= RATIO_BAND[1]:
+            notes.append(f"measured loss is {r:.2f} times the model's: check the material choice and the geometry")
+    return _Measured(float(meas), sens, h, volume, tuple(warnings), tuple(notes))
+
+
+def _inputs(s: _Settings, material, steinmetz, skin_effect) -> dict:
+    chosen = material if material is not None else steinmetz
+    return {"turns": s.turns, "sense_turns": s.sense_turns, "area_m2": s.area, "volume_m3": s.volume,
+            "path_length_m": s.path_length, "winding_resistance_ohm": s.winding_resistance, "deskew_s": s.deskew,
+            "material": getattr(chosen, "name", None), "temperature_c": s.temperature, "thickness_m": s.thickness,
+            "resistivity_ohm_m": s.resistivity, "skin_effect": bool(skin_effect)}
 
 
 def analyse_record(
@@ -634,6 +850,8 @@ def analyse_record(
     volume: float | None = None,
     path_length: float | None = None,
     sense_turns: float | None = None,
+    winding_resistance: float | None = None,
+    deskew: float | None = None,
     material=None,
     steinmetz: SteinmetzSet | None = None,
     temperature: float | None = None,
@@ -641,7 +859,7 @@ def analyse_record(
     resistivity: float | None = None,
     skin_effect: bool = True,
 ) -> CaptureAnalysis:
-    """Analyse a captured record given as arrays (see :func:`analyse_capture`).
+    """Analyse a captured record given as arrays.
 
     Parameters
     ----------
@@ -653,9 +871,10 @@ def analyse_record(
     source : str
         Name used in messages.
     clipped : iterable of str
-        Channels flagged as clipped by the reader.
+        Channels the reader flagged as flat at an extreme; refused only where the
+        record shows a recorder's range (:func:`workbench.capture.clipping.clipping_evidence`).
     turns : float, optional
-        Turns of the winding ``v`` is measured on; the primary N1 of a
+        Turns of the winding ``v`` is measured on; the excited winding N1 of a
         two-winding capture [-].
     area : float, optional
         Effective core cross-section A_e [m^2].
@@ -664,8 +883,15 @@ def analyse_record(
     path_length : float, optional
         Effective magnetic path length l_e [m].
     sense_turns : float, optional
-        Turns N2 of the sense winding [-]; default ``turns``.
-    material : workbench.materials.Material, optional
+        Turns N2 of the sense winding [-]: the voltage channel is the sense
+        winding's and a current channel must exist (two-winding method).
+    winding_resistance : float, optional
+        Resistance R of the winding of a single-winding V-I capture [ohm]: R i is
+        taken off the voltage before integrating it to flux and before the loss.
+    deskew : float, optional
+        Delay of the current probe against the voltage probe [s]: the current is
+        read this much later before the loss integral.
+    material : workbench.materials.Material or str, optional
         Library material for the model loss.
     steinmetz : SteinmetzSet, optional
         A bare Steinmetz set instead of a material.
@@ -674,194 +900,70 @@ def analyse_record(
     thickness, resistivity : float, optional
         Override the lamination thickness [m] and resistivity [ohm m].
     skin_effect : bool
-        Include the skin effect in the classical part (materials only).
+        Include the skin effect in the classical part.
 
     Returns
     -------
     CaptureAnalysis
+
+    Notes
+    -----
+    Steps, one function each: check the settings (plausible ranges); decide the
+    kind and method from the channels and the options (what cannot be honoured is
+    refused); judge clipping on evidence; put the record on an even grid (gaps
+    refused); find the period on the flux (a voltage integrated over the record,
+    :func:`workbench.capture.flux.flux_density`) and check it over 2 and 3
+    periods; fold the whole periods, integrate the averaged voltage, estimate the
+    noise left, derive the reversal threshold (12 noise standard deviations) and
+    low-pass the period where its harmonics meet the noise; the model loss from
+    :func:`workbench.engine.core_loss`; the measured loss
+    (:func:`workbench.capture.measured.measured_loss`) with its sensitivity to 1 ns
+    of probe skew.
     """
     if material is not None and steinmetz is not None:
         raise ValueError("give either a material or a Steinmetz set, not both")
     chans = {str(k): np.asarray(v, dtype=float).ravel() for k, v in dict(channels).items()}
-    turns = _positive(turns, "turns", source)
-    area = _positive(area, "area", source)
-    volume = _positive(volume, "volume", source)
-    path_length = _positive(path_length, "path length", source)
-    sense_turns = _positive(sense_turns, "sense turns", source)
-    thickness = _positive(thickness, "thickness", source)
-    resistivity = _positive(resistivity, "resistivity", source)
-    kind = _choose_kind(chans, source)
-    warnings: list[str] = []
-    notes: list[str] = []
+    s = _check_settings(source, turns=turns, area=area, volume=volume, path_length=path_length,
+                        sense_turns=sense_turns, winding_resistance=winding_resistance, deskew=deskew,
+                        temperature=temperature, thickness=thickness, resistivity=resistivity,
+                        has_model=material is not None or steinmetz is not None)
+    warnings = list(s.warnings)
+    plan, w = _plan(chans, s, source)
+    warnings += w
+    used = [plan.flux_channel] + ([plan.current] if plan.current else [])
+    _checked_channels(t, chans, used, source)
+    warnings += _clipping(chans, used, tuple(clipped), source)
+    tg, rows, w = _on_grid(t, chans, used, source)
+    warnings += w
+    signal = _flux_signal(tg, rows, plan, s)
+    period, periods_in_record, w = _find_period(tg, signal, source)
+    del signal
+    warnings += w
+    folded = _fold_flux(tg, rows, plan, s, period, source)
+    warnings += _steady_state_warnings(folded)
+    notes = list(folded.notes)
+    b_peak_w = check_quantity(folded.waveform.b_peak, "b_peak", name="peak flux density from the capture",
+                              source=source)[1]
+    warnings += [f"{x} (check the turns and the area)" for x in b_peak_w]
 
-    if kind == "two-winding":
-        used = ["v_sense", "i"]
-    elif kind == "flux":
-        used = ["b"] if "b" in chans else ["flux"]
-    else:
-        used = ["v"] if "v" in chans else ["v_sense"]
-    clipped = tuple(clipped)
-    for name in used:
-        if name in clipped:
-            raise ValueError(
-                f"{source}: channel {name!r} is clipped (flat-topped at the instrument's range); "
-                "the loss would be wrong: capture again with more vertical range"
-            )
-    for name in clipped:
-        if name not in used:
-            warnings.append(f"channel {name!r} is clipped but not used for the loss")
-
-    # geometry needed by each kind
-    if kind == "flux" and "flux" in used and area is None:
-        raise ValueError(f"{source}: a flux [Wb] capture needs the effective area (--area)")
-    if kind == "voltage":
-        n_wind = turns if used[0] == "v" else (sense_turns or turns)
-        if n_wind is None or area is None:
-            raise ValueError(f"{source}: a winding-voltage capture needs the turns (--turns) and the effective area (--area)")
-    if kind == "two-winding":
-        if turns is None or area is None:
-            raise ValueError(f"{source}: a two-winding capture needs the primary turns (--turns) and the effective area (--area)")
-        if sense_turns is None:
-            sense_turns = turns
-            warnings.append(f"sense-winding turns not given: taken equal to the primary turns ({turns:g})")
-
-    for name in used:
-        y = chans[name]
-        if y.size != np.asarray(t).size:
-            raise ValueError(f"{source}: channel {name!r} has {y.size} samples, time has {np.asarray(t).size}")
-        bad = ~np.isfinite(y)
-        if bad.any():
-            j = int(np.argmax(bad))
-            raise ValueError(f"{source}: channel {name!r} has a non-finite value at sample {j + 1}: {y[j]!r}")
-        if np.ptp(y) == 0:
-            raise ValueError(f"{source}: channel {name!r} is constant ({y[0]!r}): no waveform")
-
-    tg, ys, resampled = uniform_grid(t, np.vstack([chans[name] for name in used]))
-    if resampled:
-        warnings.append("time stamps are unevenly spaced: the record was interpolated onto an even grid")
-    step = (tg[-1] - tg[0]) / (tg.size - 1)
-    rows = dict(zip(used, ys))
-
-    # the signal used to find the period: flux (voltage integrated over the record)
-    if kind == "flux":
-        b_raw = rows[used[0]] / (area if used[0] == "flux" else 1.0)
-        detect_signal = b_raw
-    else:
-        v_name = "v_sense" if kind == "two-winding" else used[0]
-        vv = rows[v_name] - rows[v_name].mean()
-        x = np.concatenate(([0.0], np.cumsum(0.5 * (vv[1:] + vv[:-1]) * step)))
-        detect_signal = x - np.polyval(np.polyfit(tg - tg[0], x, 1), tg - tg[0])
-    try:
-        est = detect_period(tg, detect_signal, noise=estimate_noise(detect_signal))
-    except ValueError as exc:
-        raise ValueError(f"{source}: {exc}") from None
-    period = est.period
-    if est.n_periods < 1.0:
-        raise ValueError(f"{source}: the record spans less than one period ({est.n_periods:.2f})")
-
-    samples = min(max(16, int(round(period / step))), MAX_SAMPLES_PER_PERIOD)
-    try:
-        fold = fold_periods(tg, ys, period, samples=samples)
-    except ValueError as exc:
-        raise ValueError(f"{source}: {exc}") from None
-    folded = dict(zip(used, fold.mean))
-    spreads = dict(zip(used, fold.spread))
-
-    if kind == "flux":
-        b_avg = folded[used[0]] / (area if used[0] == "flux" else 1.0)
-        spread = float(spreads[used[0]])
-        wander = spread * float(np.ptp(b_avg)) / np.sqrt(max(fold.n_periods - 1, 1))
-    else:
-        v_name = "v_sense" if kind == "two-winding" else used[0]
-        n_wind = (sense_turns if kind == "two-winding" else
-                  (turns if v_name == "v" else (sense_turns or turns)))
-        b_avg = _periodic_integral(folded[v_name], period) / (n_wind * area)
-        # spread of the flux, from the spread of each period's voltage integral
-        spread = _flux_spread(tg, ys[used.index(v_name)], period, samples, fold.n_periods)
-        wander = spread * float(np.ptp(b_avg)) / np.sqrt(max(fold.n_periods - 1, 1))
-
-    white = estimate_noise(b_avg)
-    # noise left on the average: the white-noise estimate, or, where larger, the
-    # period-to-period scatter divided by sqrt(J - 1) (integrated voltage noise wanders
-    # slowly, which a sample-to-sample estimate cannot see)
-    noise = max(white, wander) if fold.n_periods > 1 else white
-    threshold = max(NOISE_THRESHOLD_SIGMAS * noise, 1e-12 * float(np.ptp(b_avg)))
-    dn = denoise_period(b_avg, noise=white)
-    waveform = FluxWaveform(fold.phase, dn.values, period)
-    shape_class = classify_waveform(waveform, threshold)
-    if shape_class == "trapezoidal":
-        waveform, n_dwells = flatten_dwells(waveform)
-        if n_dwells:
-            notes.append(f"{n_dwells} zero-voltage intervals set exactly flat (|dB/dt| below 10 % of its peak)")
-
-    if fold.n_periods < MIN_PERIODS:
-        warnings.append(
-            f"only {fold.n_periods} whole period(s) in the record (at least {MIN_PERIODS} recommended): "
-            "noise and drift are poorly averaged"
-        )
-    if spread > SPREAD_WARNING:
-        warnings.append(
-            f"periods differ by {100 * spread:.1f} % RMS of the peak-to-peak flux: "
-            "the converter may not be in steady state, or the period is not constant"
-        )
-
-    bd, total, hyst, classical, excess, model_name, mwarn, mnotes = predict_loss(
-        waveform, material, steinmetz, threshold, temperature=temperature, thickness=thickness,
-        resistivity=resistivity, skin_effect=skin_effect)
-    warnings.extend(mwarn)
-    notes.extend(mnotes)
-
-    h = None
-    meas = sens = None
-    if kind == "two-winding":
-        if path_length is None:
-            warnings.append("no magnetic path length (--path-length): H and the measured loss are not computed")
-        else:
-            h = turns * folded["i"] / path_length
-            vol = volume if volume is not None else area * path_length
-            volume = vol
-            v2, i1 = rows["v_sense"], rows["i"]
-            meas, _ = measured_loss(tg, v2, i1, period, turns=turns, sense_turns=sense_turns, volume=vol)
-            skewed, _ = measured_loss(tg, v2, i1, period, turns=turns, sense_turns=sense_turns, volume=vol, skew=SKEW)
-            sens = (skewed - meas) / meas if meas != 0 else None
-            if meas <= 0:
-                warnings.append(
-                    f"measured loss is not positive ({meas:.4g} W/m^3): check the probe polarity and skew"
-                )
-            if sens is not None and abs(sens) > 0.02:
-                warnings.append(
-                    f"the measured loss changes by {100 * sens:+.1f} % per ns of probe skew: deskew the "
-                    "voltage and current probes before trusting it"
-                )
-            if total and meas > 0:
-                r = meas / total
-                if not RATIO_BAND[0] <= r <= RATIO_BAND[1]:
-                    notes.append(f"measured loss is {r:.2f} times the model's: check the material choice and the geometry")
+    model, total, hyst, classical, excess, model_name, mwarn, mnotes = predict_loss(
+        folded.waveform, material, steinmetz, folded.threshold, temperature=s.temperature, thickness=s.thickness,
+        resistivity=s.resistivity, skin_effect=skin_effect)
+    warnings += mwarn
+    notes += mnotes
+    m = _measure(tg, rows, plan, s, period, folded, total)
+    warnings += m.warnings
+    notes += m.notes
     return CaptureAnalysis(
-        source=source, kind=kind, freq=1.0 / period, periods_used=fold.n_periods,
-        periods_in_record=float(est.n_periods), spread=float(spread), waveform=waveform,
-        noise=float(noise), threshold=float(threshold), harmonics_kept=int(dn.harmonics_kept),
-        denoised=bool(dn.filtered), duty=rising_fraction(waveform),
-        waveform_class=shape_class, h=h, model=bd, model_loss=total,
-        model_name=model_name, hysteresis=hyst, classical=classical, excess=excess,
-        measured_loss=meas, skew_sensitivity=sens, volume=volume, warnings=tuple(warnings), notes=tuple(notes),
+        source=source, kind=plan.kind, freq=1.0 / period, periods_used=folded.n_periods,
+        periods_in_record=periods_in_record, spread=folded.spread, waveform=folded.waveform,
+        noise=folded.noise, threshold=folded.threshold, harmonics_kept=folded.harmonics_kept,
+        denoised=folded.denoised, duty=rising_fraction(folded.waveform), waveform_class=folded.waveform_class,
+        h=m.h, model=model, model_loss=total, model_name=model_name, hysteresis=hyst, classical=classical,
+        excess=excess, measured_loss=m.loss, measured_method=plan.method,
+        skew_sensitivity=m.sensitivity, volume=m.volume, inputs=_inputs(s, material, steinmetz, skin_effect),
+        warnings=tuple(warnings), notes=tuple(notes),
     )
-
-
-def _flux_spread(t, v, period, samples, n_periods) -> float:
-    """Spread of the per-period flux (voltage integrated period by period), relative to its pp."""
-    phase = np.arange(samples) * (period / samples)
-    times = (t[0] + phase[None, :] + period * np.arange(n_periods)[:, None]).ravel()
-    rows = np.interp(times, t, v).reshape(n_periods, samples)
-    rows = rows - rows.mean(axis=1, keepdims=True)
-    dt = period / samples
-    x = np.cumsum(rows, axis=1) * dt
-    x = x - x.mean(axis=1, keepdims=True)
-    avg = x.mean(axis=0)
-    pp = float(np.ptp(avg))
-    if n_periods < 2 or pp == 0:
-        return 0.0
-    return float(np.sqrt(np.mean((x - avg) ** 2)) / pp)
 
 
 def analyse_capture(data, **kwargs) -> CaptureAnalysis:
@@ -872,27 +974,11 @@ def analyse_capture(data, **kwargs) -> CaptureAnalysis:
     data : workbench.capture.CaptureData
         Time [s], channels in SI, source and metadata (``clipped_channels``).
     **kwargs
-        Geometry, material and options of :func:`analyse_record` (``turns``,
-        ``area``, ``volume``, ``path_length``, ``sense_turns``, ``material``,
-        ``steinmetz``, ``temperature``, ``thickness``, ``resistivity``,
-        ``skin_effect``).
+        Geometry, material and options of :func:`analyse_record`.
 
     Returns
     -------
     CaptureAnalysis
-
-    Notes
-    -----
-    Steps: put the record on an even grid; find the fundamental period
-    (:func:`workbench.analysis.steady_state.detect_period`) on the flux (a
-    winding voltage is integrated over the record first, so switching edges
-    do not dominate); average the whole periods; integrate a voltage over the
-    averaged period with the offset removed (Faraday, :math:`B = \\frac{1}{NA}\\int v\\,dt`);
-    estimate the noise left, derive the reversal threshold (12 noise standard
-    deviations) and low-pass the period where its harmonics meet the noise
-    (:func:`workbench.analysis.steady_state.denoise_period`); then the iGSE and
-    separation parts, and for two-winding captures the measured loss and its
-    sensitivity to a 1 ns probe skew.
     """
     clipped = getattr(data, "clipped_channels", ())
     return analyse_record(data.time, data.channels, source=str(data.source), clipped=clipped, **kwargs)
@@ -906,8 +992,7 @@ def analyse_file(path, *, reader_options=None, **kwargs) -> CaptureAnalysis:
     path : str or os.PathLike
         CSV or ``.npz`` capture.
     reader_options : Mapping, optional
-        Keyword arguments of :func:`workbench.capture.read_capture`
-        (``time_column``, ``columns``, ``delimiter``, ``time_unit``, ``units``).
+        Keyword arguments of :func:`workbench.capture.read_capture`.
     **kwargs
         As :func:`analyse_record`.
 

@@ -31,10 +31,12 @@ __all__ = [
     "DenoisedPeriod",
     "FoldedPeriod",
     "PeriodEstimate",
+    "Repetition",
     "checked_record",
     "denoise_period",
     "detect_period",
     "fold_periods",
+    "repetition",
     "uniform_grid",
     "uniform_step",
 ]
@@ -55,6 +57,13 @@ LONG_ROW = 1 << 15
 SPREAD_POINTS = 1 << 18
 #: Time stamps within this fraction of a step of the even grid are returned as they are.
 EXACT_GRID = 1e-6
+#: A time step longer than this many median steps, and than GAP_SHARE of the record, is a gap.
+GAP_STEPS = 100.0
+GAP_SHARE = 0.1
+#: An uneven record is put on a grid of at most this many times its own samples.
+MAX_GRID_FACTOR = 16
+#: Multiples of the period checked for a subharmonic (a flux that repeats only every k periods).
+SUBHARMONIC_MULTIPLES = (2, 3)
 #: Harmonics are kept while their amplitude exceeds this many noise standard deviations of one bin.
 HARMONIC_SNR = 4.0
 #: Noise allowed on the slope after the low-pass, as a fraction of the RMS slope of the signal.
@@ -156,11 +165,14 @@ def uniform_grid(t, channels):
     Time stamps printed with few digits deviate from the ideal grid
     :math:`t_0 + i\\,\\Delta t` (with :math:`\\Delta t = (t_{N-1} - t_0)/(N-1)`) by
     rounding; when every deviation is under half an interval, the samples are
-    kept and the ideal grid is used. Stamps within ``EXACT_GRID`` (1e-6) of an
+    kept and the ideal grid is used. A step longer than 100 median steps and
+    10 % of the span is a gap (missing data, two records joined): refused with
+    the place named, never bridged by interpolation. Stamps within ``EXACT_GRID`` (1e-6) of an
     interval of the ideal grid already are that grid up to floating-point
     rounding, and are returned as they are (no copy; the values are not copied
     either). Otherwise the signals are linearly interpolated onto a grid with
-    the median interval. The check runs over the record in cache-sized chunks.
+    the median interval (or, for very uneven steps, the interval that gives 16
+    times the record's samples). The check runs over the record in cache-sized chunks.
     """
     t = np.asarray(t, dtype=float).ravel()
     y = np.atleast_2d(np.asarray(channels, dtype=float))
@@ -178,8 +190,20 @@ def uniform_grid(t, channels):
         raise ValueError(f"time must be finite and strictly increasing; problem at index {i}: {t[i]!r}")
     if dev <= 0.5 * step:
         return t[0] + np.arange(t.size) * step, y, False
+    span = float(t[-1] - t[0])
     step = float(np.median(steps))
-    grid = t[0] + np.arange(int(np.floor((t[-1] - t[0]) / step)) + 1) * step
+    i = int(np.argmax(steps))
+    gap = float(steps[i])
+    if gap > GAP_STEPS * step and gap > GAP_SHARE * span:
+        raise ValueError(
+            f"time has a gap of {gap:.4g} s between samples {i} and {i + 1} (t = {t[i]:.6g} s), "
+            f"{gap / step:.3g} times the usual step of {step:.3g} s: the record is not one continuous "
+            "capture; analyse the parts on either side of the gap separately"
+        )
+    # a simulator's adaptive steps (many tiny steps on the edges) would make the median grid
+    # far denser than the record: the grid holds at most MAX_GRID_FACTOR times its samples
+    step = max(step, span / (MAX_GRID_FACTOR * t.size))
+    grid = t[0] + np.arange(int(np.floor(span / step)) + 1) * step
     return grid, np.array([np.interp(grid, t, row) for row in y]), True
 
 
@@ -814,6 +838,83 @@ def fold_periods(t, channels, period: float, *, samples: int | None = None) -> F
         spreads.append(rms / pp if pp > 0 else 0.0)
     return FoldedPeriod(phase=phase, mean=np.array(means), spread=np.array(spreads),
                         n_periods=n_periods, t_start=float(t[0]))
+
+
+@dataclass(frozen=True)
+class Repetition:
+    """How a record repeats over multiples of its detected period.
+
+    Attributes
+    ----------
+    multiple : int
+        The multiple k of the period over which the signal differs most from
+        one period to the next (1 when no multiple was testable) [-].
+    change : float
+        Largest difference between the k periods of the fold over k T and their
+        average, relative to the average's peak-to-peak [-].
+    allowance : float
+        The part of ``change`` that noise alone could explain (4 standard
+        deviations of a difference of averages), same scale [-].
+    periods : int
+        Whole periods of k T in the record [-].
+    """
+
+    multiple: int
+    change: float
+    allowance: float
+    periods: int
+
+
+def repetition(t, y, period: float, *, samples: int | None = None) -> Repetition:
+    """Check whether a record repeats only every 2 or 3 detected periods (a subharmonic).
+
+    Parameters
+    ----------
+    t : array_like
+        Sample times, evenly spaced [s].
+    y : array_like
+        The signal whose period was detected (flux, for example) [any unit].
+    period : float
+        Detected period T [s].
+    samples : int, optional
+        Samples per period T of the folds (default the record's resolution).
+
+    Returns
+    -------
+    Repetition
+        For the multiple k in (2, 3) with the largest change, among those of
+        which the record holds at least one whole period.
+
+    Notes
+    -----
+    The record is folded over k T; the fold is cut into its k periods
+    :math:`y_j` and compared with their average :math:`\\bar y`:
+    :math:`c_k = \\max_{j,\\varphi} |y_j - \\bar y| / \\mathrm{pp}(\\bar y)`. A
+    subharmonic of relative amplitude a changes the fold over T by up to a
+    (10 % of the flux at half the frequency: 5 % of the swing is lost).
+    Noise allows :math:`4\\,s\\sqrt{2/J_k}` with s the fold's period-to-period
+    spread and :math:`J_k` the whole periods of k T.
+    """
+    t = np.asarray(t, dtype=float).ravel()
+    y = np.asarray(y, dtype=float).ravel()
+    step = uniform_step(t)
+    if samples is None:
+        samples = max(16, round(period / step))
+    best = Repetition(1, 0.0, 0.0, 0)
+    for k in SUBHARMONIC_MULTIPLES:
+        if (t[-1] - t[0]) + step < k * period:
+            continue
+        fold = fold_periods(t, y, k * period, samples=k * samples)
+        parts = fold.mean[0].reshape(k, samples)
+        avg = parts.mean(axis=0)
+        pp = float(np.ptp(avg))
+        if pp <= 0:
+            continue
+        change = float(np.max(np.abs(parts - avg))) / pp
+        allowance = 4.0 * float(fold.spread[0]) * float(np.ptp(fold.mean[0])) / pp * np.sqrt(2.0 / fold.n_periods)
+        if change - allowance > best.change - best.allowance:
+            best = Repetition(k, change, allowance, fold.n_periods)
+    return best
 
 
 @dataclass(frozen=True)
