@@ -114,8 +114,10 @@ def test_material_and_steinmetz_together_is_a_usage_error():
 def bench(tmp_path):
     src = tmp_path / "bench"
     src.mkdir()
-    for name in ("flyback_dcm_ferrite_100k.csv", "inverter_pwm_sisteel_50hz.csv"):
-        (src / name).write_bytes((CAPTURES / name).read_bytes())
+    # two two-winding captures: the options below give --sense-turns, which a file without a
+    # current channel (the flyback capture) has to refuse
+    for name in ("inverter_pwm_sisteel_50hz.csv", "inverter_pwm_sisteel_50hz_repeat.csv"):
+        (src / name).write_bytes((CAPTURES / "inverter_pwm_sisteel_50hz.csv").read_bytes())
     (src / "broken.csv").write_text("time (s),v (V)\n0,1\n1e-6,nan\n2e-6,3\n", encoding="utf-8")
     return src
 
@@ -134,8 +136,8 @@ def test_folder_writes_one_row_per_file_and_a_summary(bench, tmp_path, jobs):
     summary = json.loads(proc.stdout)
     assert summary["files_analysed"] == 2 and summary["files_failed"] == 1
     rows = [json.loads(line) for line in (tmp_path / "out" / "run.jsonl").read_text().splitlines()]
-    assert sorted(Path(r["file"]).name for r in rows) == ["broken.csv", "flyback_dcm_ferrite_100k.csv",
-                                                         "inverter_pwm_sisteel_50hz.csv"]
+    assert sorted(Path(r["file"]).name for r in rows) == ["broken.csv", "inverter_pwm_sisteel_50hz.csv",
+                                                         "inverter_pwm_sisteel_50hz_repeat.csv"]
     bad = next(r for r in rows if r["file"].endswith("broken.csv"))
     assert bad["status"] == "error" and "broken.csv" in bad["error"] and "row 3" in bad["error"]
     good = next(r for r in rows if r["file"].endswith("inverter_pwm_sisteel_50hz.csv"))
