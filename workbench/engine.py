@@ -888,7 +888,7 @@ def core_loss(waveform, material, *, temperature=None, thickness=None, resistivi
     >>> from workbench.shapes import make_shape
     >>> r = core_loss(make_shape("sine", b_peak=1.5, freq=50), "M400-50A")
     >>> r.loss_model, round(r.loss_w_kg, 2)
-    ('iGSE', 3.9)
+    ('iGSE', 3.53)
     """
     c = Conditions(temperature, thickness, resistivity, skin_effect, minor_loops, threshold, h_dc)
     laws = loss_laws(waveform, material, c)

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from workbench import models
-from workbench.analysis.sweep import DEFAULT_FREQS
+from workbench.analysis.sweep import DEFAULT_FREQS, _shape
 from workbench.engine import Conditions, flux_scale_at_loss, loss_laws, resolve_material
 from workbench.shapes import ShapeSpec
 
@@ -259,18 +259,20 @@ class MaterialComparison:
         }
 
 
-def compare_materials(materials, shape: str = "sine", *, b_peak: float, loss_density: float, duty: float = 0.5,
+def compare_materials(materials, shape="sine", *, b_peak: float | None = None, loss_density: float, duty: float = 0.5,
                       freqs=None, temperature: float | None = None) -> MaterialComparison:
     """Loss against frequency at one flux, and f * B_peak at one loss density, for several materials.
 
     Parameters
     ----------
-    materials : sequence of workbench.materials.Material
-        Materials to compare (at least one, names unique).
-    shape : {"sine", "triangle", "trapezoid"}
-        Waveform shape.
-    b_peak : float
-        Peak flux density of the loss curves [T].
+    materials : sequence of workbench.materials.Material or str
+        Materials (or library names) to compare (at least one, names unique).
+    shape : {"sine", "triangle", "trapezoid"} or FluxWaveform
+        Waveform shape, or one period of flux (a captured one): its flux shape is
+        kept and time scaled to each frequency.
+    b_peak : float, optional
+        Peak flux density of the loss curves [T] (with a shape name; a waveform
+        brings its own).
     loss_density : float
         Allowed loss density of the f * B_peak curves [W/m^3] (e.g. 200e3 W/m^3 = 200 mW/cm^3).
     duty : float
@@ -309,7 +311,11 @@ def compare_materials(materials, shape: str = "sine", *, b_peak: float, loss_den
     dup = sorted({n for n in names if names.count(n) > 1})
     if dup:
         raise ValueError(f"materials must be unique, got {', '.join(dup)} more than once")
-    b = _positive_scalar(b_peak, "b_peak")
+    wave = _shape(shape, None if b_peak is None else _positive_scalar(b_peak, "b_peak"), duty)
+    named = isinstance(wave, ShapeSpec)
+    if named:
+        wave = ShapeSpec(wave.shape, wave.b_peak, 1.0, wave.duty)
+    b = float(wave.b_peak)
     pv = _positive_scalar(loss_density, "loss_density")
     f = _freq_array(freqs)
     curves = []
@@ -317,7 +323,7 @@ def compare_materials(materials, shape: str = "sine", *, b_peak: float, loss_den
     warnings = []
     for m in mats:
         st = m.steinmetz
-        laws = loss_laws(ShapeSpec(shape, b, 1.0, duty), m, Conditions(temperature=temperature))
+        laws = loss_laws(wave, m, Conditions(temperature=temperature))
         warnings += [w if m.name in w else f"{m.name}: {w}" for w in laws.warnings]
         loss = laws.parts(f)["total"]
         b_loss = b * flux_scale_at_loss(laws, f, pv)
@@ -342,7 +348,8 @@ def compare_materials(materials, shape: str = "sine", *, b_peak: float, loss_den
             p_unit=float(laws.igse_ref / b**laws.beta), b_sat=float(m.b_sat), density=float(m.density),
             freq_range=(float(f_lo), float(f_hi)), b_range=(float(b_lo), float(b_hi)), loss_model=laws.model_name,
         ))
-    return MaterialComparison(freq=f, shape=shape, duty=float(duty), b_peak=b, loss_density=pv,
+    return MaterialComparison(freq=f, shape=wave.shape if named else "waveform", duty=float(duty) if named else None,
+                              b_peak=b, loss_density=pv,
                               temperature=temperature, curves=tuple(curves), notes=tuple(notes),
                               warnings=tuple(warnings))
 
