@@ -83,7 +83,7 @@ def package_info() -> dict:
     return {"package": PACKAGE_NAME, "version": __version__}
 
 
-def build_record(kind: str, inputs: Mapping, results: Mapping) -> dict:
+def build_record(kind: str, inputs: Mapping, results: Mapping, **extra) -> dict:
     """A record of one analysis: package, version, UTC time, kind, inputs and results.
 
     Parameters
@@ -94,14 +94,30 @@ def build_record(kind: str, inputs: Mapping, results: Mapping) -> dict:
         Inputs in SI with the unit in the key.
     results : Mapping
         Results in SI with the unit in the key.
+    **extra
+        Report sections (see :func:`workbench.report.write_report`): ``title`` (str),
+        ``material`` (dict or list of dicts from :func:`workbench.report.material_entry`),
+        ``files`` (list from :func:`workbench.report.file_entry`), ``table``
+        (``{"columns": [{"name", "unit", "key"}], "rows": [[...]]}``, SI values),
+        ``statements``, ``warnings``, ``notes``, ``cautions`` (lists of str), ``series``
+        (columns for the CSV and the plots), ``plots`` (list of plot specs).
     """
-    return {
+    allowed = {"title", "material", "files", "table", "statements", "warnings", "notes", "cautions", "series",
+               "plots"}
+    unknown = sorted(set(extra) - allowed)
+    if unknown:
+        raise ValueError(f"build_record got unknown section(s) {', '.join(unknown)}; known: {', '.join(sorted(allowed))}")
+    record = {
         **package_info(),
         "created_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "kind": str(kind),
         "inputs": to_jsonable(dict(inputs)),
         "results": to_jsonable(dict(results)),
     }
+    for key, value in extra.items():
+        if value is not None:
+            record[key] = value if key == "plots" else to_jsonable(value)
+    return record
 
 
 def write_json(path, record: Mapping) -> Path:

@@ -20,9 +20,14 @@ from workbench.analysis.compare import MaterialComparison, compare_materials, sk
 from workbench.analysis.sweep import FrequencySweep
 from workbench.checks import positive_number
 from workbench.materials import get_material
-from workbench.units import format_quantity
+from workbench.report.numbers import eng
+from workbench.units import parse_quantity
 
 __all__ = [
+    "InputError",
+    "FREQUENCY_PARTS",
+    "material_defaults",
+    "parse_frequency_list",
     "FrequencySettings",
     "FrequencyView",
     "frequency_view",
@@ -36,30 +41,133 @@ __all__ = [
 ]
 
 
+class InputError(ValueError):
+    """A ValueError about named settings (``params``), so a panel can mark the controls that set them.
+
+    Parameters
+    ----------
+    params : sequence of str
+        Setting names the message is about (``("f_min", "f_max")``).
+    message : str
+        The message, naming the parameter and the value.
+    """
+
+    def __init__(self, params, message: str):
+        self.params = tuple(params)
+        super().__init__(message)
+
+
 def _check_positive(name: str, value) -> float:
-    return positive_number(value, name)
+    try:
+        return positive_number(value, name)
+    except ValueError as exc:
+        raise InputError((name,), str(exc)) from None
 
 
 def _check_common(shape, duty, f_min, f_max, n_points):
     if shape not in SHAPES:
-        raise ValueError(f"shape must be one of {', '.join(SHAPES)}, got {shape!r}")
+        raise InputError(("shape",), f"shape must be one of {', '.join(SHAPES)}, got {shape!r}")
     if not 0.0 < float(duty) < 1.0:
-        raise ValueError(f"duty must lie strictly between 0 and 1, got {duty!r}")
+        raise InputError(("duty",), f"duty must lie strictly between 0 and 1, got {duty!r}")
     lo = _check_positive("f_min", f_min)
     hi = _check_positive("f_max", f_max)
     if not lo < hi:
-        raise ValueError(f"f_min must be below f_max, got f_min={f_min!r} Hz and f_max={f_max!r} Hz")
+        raise InputError(("f_min", "f_max"),
+                         f"f_min must be below f_max, got f_min={f_min!r} Hz and f_max={f_max!r} Hz")
     if not isinstance(n_points, (int, np.integer)) or not 2 <= n_points <= 20000:
-        raise ValueError(f"n_points must be an integer from 2 to 20000, got {n_points!r}")
+        raise InputError(("n_points",), f"n_points must be an integer from 2 to 20000, got {n_points!r}")
 
 
 def _hz(x: float) -> str:
-    return format_quantity(x, "Hz")
+    return eng(x, "Hz", 4)
 
 
 # ==========================================================================================
 # frequency explorer
 # ==========================================================================================
+#: Parts drawn by the frequency explorer, in legend order: (key, legend label).
+FREQUENCY_PARTS = (
+    ("hysteresis", "hysteresis"),
+    ("classical", "classical eddy"),
+    ("excess", "excess"),
+    ("eddy", "classical + excess (eddy, as counted)"),
+    ("total", "sum of the three parts"),
+    ("steinmetz", "model total"),
+)
+
+
+def _nice_decade(x: float, up: bool) -> float:
+    e = math.log10(x)
+    return 10.0 ** (math.ceil(e - 1e-9) if up else math.floor(e + 1e-9))
+
+
+def material_defaults(material, b_peak: float | None = None) -> dict:
+    """Sweep range and B_peak that suit a material, and why a value was changed.
+
+    Parameters
+    ----------
+    material : str or workbench.materials.Material
+        Library material.
+    b_peak : float, optional
+        The B_peak in use [T]; kept when it lies inside the material's fitted flux range and
+        below 80 % of its saturation, otherwise capped (or raised) to the nearest such value.
+
+    Returns
+    -------
+    dict
+        ``f_min``, ``f_max`` [Hz] (from a tenth of the fitted range's low end to thirty
+        times its high end, on whole decades), ``b_peak`` [T], ``b_peak_message``
+        (None when ``b_peak`` was kept), ``b_max`` [T] (the cap).
+    """
+    m = get_material(material) if isinstance(material, str) else material
+    f_lo, f_hi = m.steinmetz.freq_range
+    b_lo, b_hi = m.steinmetz.b_range
+    cap = min(b_hi, 0.8 * m.b_sat)  # 0.8 B_sat: common practice, no source (the engine warns above it too)
+    out = {"f_min": _nice_decade(f_lo / 10, up=False), "f_max": _nice_decade(f_hi * 30, up=True),
+           "b_max": cap, "b_peak": b_peak, "b_peak_message": None}
+    if b_peak is None:
+        out["b_peak"] = min(max(0.5 * (b_lo + b_hi), b_lo), cap)
+    elif b_peak > cap:
+        why = ("the top of its fitted flux range" if cap == b_hi else "80 % of its saturation flux density")
+        out["b_peak"] = cap
+        out["b_peak_message"] = (f"B_peak capped from {eng(b_peak, 'T', 4)} to {eng(cap, 'T', 4)}: {why} for "
+                                 f"{m.name} (fitted {eng(b_lo, 'T')} to {eng(b_hi, 'T')}, saturation {eng(m.b_sat, 'T')})")
+    elif b_peak < b_lo:
+        out["b_peak"] = b_lo
+        out["b_peak_message"] = (f"B_peak raised from {eng(b_peak, 'T', 4)} to {eng(b_lo, 'T', 4)}: the bottom of the "
+                                 f"fitted flux range of {m.name}")
+    return out
+
+
+def parse_frequency_list(text: str) -> tuple[float, ...]:
+    """Operating frequencies typed as ``"50, 400, 20k"`` -> Hz (empty text: none).
+
+    Parameters
+    ----------
+    text : str
+        Comma- or semicolon-separated frequencies, each with an optional prefix or unit.
+
+    Returns
+    -------
+    tuple of float
+        Frequencies [Hz] in the order typed, duplicates removed.
+    """
+    items = [t.strip() for t in str(text).replace(";", ",").split(",") if t.strip()]
+    if len(items) > 12:
+        raise InputError(("operating_freqs",), f"operating frequencies: at most 12, got {len(items)}")
+    out = []
+    for t in items:
+        try:
+            f = parse_quantity(t, "Hz", name="operating frequency")
+        except ValueError as exc:
+            raise InputError(("operating_freqs",), str(exc)) from None
+        if not (math.isfinite(f) and f > 0):
+            raise InputError(("operating_freqs",), f"operating frequency must be positive, got {t!r}")
+        if f not in out:
+            out.append(f)
+    return tuple(out)
+
+
 @dataclass(frozen=True)
 class FrequencySettings:
     """Inputs of the frequency explorer (SI units).
@@ -69,11 +177,12 @@ class FrequencySettings:
     material : str
         Library material name.
     shape : str
-        Waveform shape, one of :data:`workbench.analysis.SHAPES`.
+        Waveform shape, one of :data:`workbench.analysis.SHAPES`, or ``"waveform"`` to
+        sweep ``waveform`` (a captured period) instead.
     duty : float
         Duty cycle [-] (ignored for the sine).
     b_peak : float
-        Peak flux density [T].
+        Peak flux density [T] (of the shape; a waveform keeps its own flux).
     thickness : float or None
         Lamination thickness [m]; None for the material's.
     resistivity : float or None
@@ -86,6 +195,21 @@ class FrequencySettings:
         Sweep range [Hz].
     n_points : int
         Number of log-spaced frequencies.
+    temperature : float or None
+        Core temperature [degC]; None for the material's reference temperature.
+    per_mass : bool
+        Show W/kg (and J/kg) instead of W/m^3.
+    volume : float or None
+        Core volume [m^3] for the loss in watts at the operating points.
+    operating_freqs : tuple of float
+        Frequencies [Hz] marked on the plot with a readout row each.
+    compare_thickness, compare_resistivity : float or None
+        A second lamination drawn over the first (thickness [m], resistivity [ohm m];
+        None for the first one's); no overlay when both are None.
+    waveform : workbench.waveforms.FluxWaveform or None
+        One period of flux to sweep when ``shape == "waveform"`` (time scaled, flux kept).
+    waveform_name : str
+        What the waveform is (file name), for texts and reports.
     """
 
     material: str = "M270-35A"
@@ -99,20 +223,51 @@ class FrequencySettings:
     f_min: float = 10.0
     f_max: float = 1e6
     n_points: int = 400
+    temperature: float | None = None
+    per_mass: bool = False
+    volume: float | None = None
+    operating_freqs: tuple = ()
+    compare_thickness: float | None = None
+    compare_resistivity: float | None = None
+    waveform: object = field(default=None, repr=False, compare=False)
+    waveform_name: str = ""
 
     def __post_init__(self):
-        _check_common(self.shape, self.duty, self.f_min, self.f_max, self.n_points)
+        if self.shape == "waveform":
+            if self.waveform is None:
+                raise InputError(("shape",), "shape 'waveform' needs a waveform (a captured period); none is loaded")
+            _check_common("sine", self.duty, self.f_min, self.f_max, self.n_points)
+        else:
+            _check_common(self.shape, self.duty, self.f_min, self.f_max, self.n_points)
         _check_positive("b_peak", self.b_peak)
-        for name in ("thickness", "resistivity"):
+        for name in ("thickness", "resistivity", "volume", "compare_thickness", "compare_resistivity"):
             if getattr(self, name) is not None:
                 _check_positive(name, getattr(self, name))
+        if self.temperature is not None:
+            t = float(self.temperature)
+            if not math.isfinite(t) or t < -273.15:
+                raise InputError(("temperature",), f"temperature must be a finite temperature in degC, got {self.temperature!r}")
+        freqs = tuple(float(f) for f in self.operating_freqs)
+        for f in freqs:
+            _check_positive("operating_freqs", f)
+        object.__setattr__(self, "operating_freqs", freqs)
+
+    @property
+    def has_overlay(self) -> bool:
+        """Whether a second lamination is drawn."""
+        return self.compare_thickness is not None or self.compare_resistivity is not None
 
     def to_dict(self) -> dict:
         return {
-            "material": self.material, "shape": self.shape, "duty": self.duty, "b_peak_t": self.b_peak,
+            "material": self.material, "shape": self.shape if self.shape != "waveform" else f"waveform: {self.waveform_name}",
+            "duty": self.duty if self.shape in ("triangle", "trapezoid") else None,
+            "b_peak_t": self.b_peak if self.shape != "waveform" else None,
             "thickness_m": self.thickness, "resistivity_ohm_m": self.resistivity, "skin_effect": self.skin_effect,
-            "excess_counted_as_eddy": self.include_excess, "f_min_hz": self.f_min, "f_max_hz": self.f_max,
-            "n_points": self.n_points,
+            "excess_counted_as_eddy": self.include_excess, "temperature_c": self.temperature,
+            "f_min_hz": self.f_min, "f_max_hz": self.f_max, "n_points": self.n_points,
+            "loss_axis": "W/kg" if self.per_mass else "W/m3", "core_volume_m3": self.volume,
+            "operating_frequencies_hz": list(self.operating_freqs),
+            "second_thickness_m": self.compare_thickness, "second_resistivity_ohm_m": self.compare_resistivity,
         }
 
 
@@ -127,16 +282,29 @@ class FrequencyView:
     sweep : workbench.analysis.FrequencySweep
         The library's sweep.
     columns : dict of str to numpy.ndarray
-        Plotted columns: ``freq`` [Hz]; ``hysteresis``, ``classical``, ``excess``,
-        ``total`` (separation sum), ``steinmetz`` (iGSE) [W/m^3]; the same with an
-        ``e_`` prefix as energy per cycle P/f [J/m^3]; ``extrapolated`` (bool).
-        Parts the material lacks are NaN.
+        Plotted columns: ``freq`` [Hz]; the parts of :data:`FREQUENCY_PARTS` in ``unit``
+        (W/m^3, or W/kg with ``per_mass``): ``hysteresis``, ``classical``, ``excess``,
+        ``eddy`` (classical + excess, NaN unless the excess counts as eddy), ``total``
+        (separation sum), ``steinmetz`` (the model total); the same with an ``e_`` prefix as
+        energy per cycle P/f [J/m^3 or J/kg]; ``extrapolated`` (bool). Missing parts are NaN.
+    unit, energy_unit : str
+        ``"W/m3"``/``"J/m3"`` or ``"W/kg"``/``"J/kg"``.
+    drawn : tuple of str
+        Keys of the parts that have values (the legend lists only these).
     crossover_freq : float or None
         Crossover frequency [Hz] (the library's :func:`crossover_frequency`).
     knee_freq : float or None
         Skin-effect knee [Hz] (None with the skin effect off).
     crossover_text, knee_text : str
         The same in words.
+    operating_rows : tuple of dict
+        One row per operating frequency, computed there by the library (not read off the
+        grid): ``frequency_hz``, ``hysteresis_w_m3``, ``classical_w_m3``, ``excess_w_m3``,
+        ``separation_total_w_m3``, ``loss_w_m3`` (model total), ``loss_w_kg``, ``loss_w``
+        (None without a volume), ``extrapolated``.
+    overlay : dict or None
+        The second lamination: ``columns`` (``freq``, ``classical``, ``eddy``, ``total``,
+        ``steinmetz`` in ``unit``), ``sweep``, ``crossover_freq``, ``text``.
     warnings : tuple of str
         Things to check.
     """
@@ -144,11 +312,36 @@ class FrequencyView:
     settings: FrequencySettings
     sweep: FrequencySweep
     columns: dict
+    unit: str
+    energy_unit: str
+    drawn: tuple
     crossover_freq: float | None
     knee_freq: float | None
     crossover_text: str
     knee_text: str
+    operating_rows: tuple = ()
+    overlay: dict | None = None
     warnings: tuple[str, ...] = field(default=())
+
+
+def _sweep(s: FrequencySettings, freqs, thickness, resistivity):
+    shape = s.waveform if s.shape == "waveform" else s.shape
+    return sweep_frequency(s.material, shape, b_peak=None if s.shape == "waveform" else s.b_peak, duty=s.duty,
+                           freqs=freqs, thickness=thickness, resistivity=resistivity, skin_effect=s.skin_effect,
+                           include_excess=s.include_excess, temperature=s.temperature)
+
+
+def _parts(sw, include_excess: bool) -> dict:
+    nan = np.full(sw.freq.shape, np.nan)
+    eddy = sw.classical + sw.excess if include_excess and sw.excess is not None else nan
+    return {
+        "hysteresis": nan if sw.hysteresis is None else sw.hysteresis,
+        "classical": sw.classical,
+        "excess": nan if sw.excess is None else sw.excess,
+        "eddy": eddy,
+        "total": nan if sw.separation_total is None else sw.separation_total,
+        "steinmetz": sw.total,
+    }
 
 
 def frequency_view(settings: FrequencySettings) -> FrequencyView:
@@ -166,49 +359,83 @@ def frequency_view(settings: FrequencySettings) -> FrequencyView:
     s = settings
     material = get_material(s.material)
     freqs = np.geomspace(s.f_min, s.f_max, s.n_points)
-    sw = sweep_frequency(material, s.shape, b_peak=s.b_peak, duty=s.duty, freqs=freqs, thickness=s.thickness,
-                         resistivity=s.resistivity, skin_effect=s.skin_effect, include_excess=s.include_excess)
-    nan = np.full(freqs.shape, np.nan)
-    parts = {
-        "hysteresis": nan if sw.hysteresis is None else sw.hysteresis,
-        "classical": sw.classical,
-        "excess": nan if sw.excess is None else sw.excess,
-        "total": nan if sw.separation_total is None else sw.separation_total,
-        "steinmetz": sw.total,
-    }
+    sw = _sweep(s, freqs, s.thickness, s.resistivity)
+    parts = _parts(sw, s.include_excess)
+    if s.per_mass:
+        unit, energy_unit = "W/kg", "J/kg"
+        shown = {k: sw.specific(v) for k, v in parts.items()}
+    else:
+        unit, energy_unit = "W/m3", "J/m3"
+        shown = parts
     columns = {"freq": freqs}
-    columns.update(parts)
-    columns.update({f"e_{k}": sw.energy_per_cycle(v) for k, v in parts.items()})
+    columns.update(shown)
+    columns.update({f"e_{k}": sw.energy_per_cycle(v) for k, v in shown.items()})
     columns["extrapolated"] = sw.extrapolated
+    drawn = tuple(k for k, _ in FREQUENCY_PARTS if np.any(np.isfinite(shown[k])))
 
     cx = sw.crossover
     if cx.freq is not None:
-        crossover_text = f"Crossover at {_hz(cx.freq)}: {cx.message}."
+        crossover_text = f"Crossover at {eng(cx.freq, 'Hz', 4)}: {cx.message}."
     else:
         crossover_text = f"No crossover: {cx.message}."
     knee = None
     if s.skin_effect:
         knee = skin_knee_frequency(sw.resistivity, sw.thickness, material.rel_permeability)
-        knee_text = (f"Skin-effect knee at {_hz(knee)} (thickness = 3 skin depths for mu_r = "
+        knee_text = (f"Skin-effect knee at {eng(knee, 'Hz', 4)} (thickness = 3 skin depths for mu_r = "
                      f"{material.rel_permeability:.4g}): above it the classical part grows as f^1.5 instead of f^2.")
     else:
         knee_text = "Skin effect off: the classical part follows the thin-sheet law (f^2) at every frequency."
 
-    warnings = []
+    rows = []
+    if s.operating_freqs:
+        ops = np.array(sorted(s.operating_freqs))
+        at = _sweep(s, ops, s.thickness, s.resistivity)
+        lo, hi = at.valid_freq_range
+        for i, f in enumerate(ops):
+            def pick(a, i=i):
+                return None if a is None else float(a[i])
+
+            total = float(at.total[i])
+            rows.append({
+                "frequency_hz": float(f), "hysteresis_w_m3": pick(at.hysteresis), "classical_w_m3": pick(at.classical),
+                "excess_w_m3": pick(at.excess), "separation_total_w_m3": pick(at.separation_total),
+                "loss_w_m3": total, "loss_w_kg": pick(at.specific(at.total)),
+                "loss_w": None if s.volume is None else total * s.volume,
+                "extrapolated": bool(f < lo or f > hi)})
+
+    overlay = None
+    if s.has_overlay:
+        d2 = s.compare_thickness if s.compare_thickness is not None else sw.thickness
+        r2 = s.compare_resistivity if s.compare_resistivity is not None else sw.resistivity
+        sw2 = _sweep(s, freqs, d2, r2)
+        p2 = _parts(sw2, s.include_excess)
+        if s.per_mass:
+            p2 = {k: sw2.specific(v) for k, v in p2.items()}
+        cx2 = sw2.crossover
+        first = eng(cx.freq, "Hz", 4) if cx.freq is not None else "none in range"
+        second = eng(cx2.freq, "Hz", 4) if cx2.freq is not None else "none in range"
+        text = (f"Second lamination {eng(d2, 'm', 3)}, {eng(r2, 'ohm m', 3)}: crossover {second} "
+                f"(first lamination {eng(sw.thickness, 'm', 3)}, {eng(sw.resistivity, 'ohm m', 3)}: {first}).")
+        overlay = {"columns": {"freq": freqs, "classical": p2["classical"], "eddy": p2["eddy"], "total": p2["total"],
+                               "steinmetz": p2["steinmetz"]},
+                   "sweep": sw2, "crossover_freq": cx2.freq, "text": text, "thickness_m": d2, "resistivity_ohm_m": r2}
+
+    warnings = list(sw.warnings) + [w for w in cx.warnings if w not in sw.warnings]
     st = material.steinmetz
     f_lo, f_hi = st.freq_range
     b_lo, b_hi = st.b_range
-    warnings.append(f"{material.name}: Steinmetz set fitted over {_hz(f_lo)} to {_hz(f_hi)} and "
-                    f"{b_lo:.3g} to {b_hi:.3g} T; grey bands are extrapolated.")
-    if not b_lo <= s.b_peak <= b_hi:
-        warnings.append(f"B_peak {s.b_peak:.3g} T is outside the fitted flux range of {material.name}: every curve is extrapolated.")
-    if s.b_peak > 0.8 * material.b_sat:
-        warnings.append(f"B_peak {s.b_peak:.3g} T is {100 * s.b_peak / material.b_sat:.0f} % of the saturation flux "
-                        f"density of {material.name} ({material.b_sat:.3g} T): loss models lose validity near saturation.")
+    warnings.append(f"{material.name}: Steinmetz set fitted over {eng(f_lo, 'Hz')} to {eng(f_hi, 'Hz')} and "
+                    f"{eng(b_lo, 'T')} to {eng(b_hi, 'T')}; grey bands are extrapolated.")
+    if s.shape != "waveform" and s.b_peak > 0.8 * material.b_sat and not any("saturation" in w for w in warnings):
+        warnings.append(f"B_peak {eng(s.b_peak, 'T')} is {100 * s.b_peak / material.b_sat:.0f} % of the saturation flux "
+                        f"density of {material.name} ({eng(material.b_sat, 'T')}): loss models lose validity near saturation.")
     if sw.hysteresis is None:
         warnings.append(f"{material.name} has no loss-separation set: hysteresis and excess are not drawn and the "
-                        "crossover compares the classical part with the Steinmetz total.")
-    return FrequencyView(s, sw, columns, cx.freq, knee, crossover_text, knee_text, tuple(warnings))
+                        "crossover compares the classical part with the model total.")
+    if s.per_mass and sw.density is None:
+        raise InputError(("per_mass",), f"{material.name} has no density: W/kg cannot be shown")
+    return FrequencyView(s, sw, columns, unit, energy_unit, drawn, cx.freq, knee, crossover_text, knee_text,
+                         tuple(rows), overlay, tuple(dict.fromkeys(warnings)))
 
 
 # ==========================================================================================
@@ -251,7 +478,7 @@ class ComparisonSettings:
     def __post_init__(self):
         _check_common(self.shape, self.duty, self.f_min, self.f_max, self.n_points)
         if isinstance(self.materials, str) or not self.materials:
-            raise ValueError(f"materials must be a non-empty sequence of names, got {self.materials!r}")
+            raise InputError(("materials",), f"materials must be a non-empty sequence of names, got {self.materials!r}")
         object.__setattr__(self, "materials", tuple(self.materials))
         _check_positive("b_peak", self.b_peak)
         _check_positive("loss_density", self.loss_density)
@@ -426,7 +653,7 @@ class CaptureSettings:
             if getattr(self, name) is not None:
                 _check_positive(name, getattr(self, name))
         if self.temperature is not None and not math.isfinite(float(self.temperature)):
-            raise ValueError(f"temperature must be finite, got {self.temperature!r}")
+            raise InputError(("temperature",), f"temperature must be finite, got {self.temperature!r}")
 
     @property
     def effective_volume(self) -> float | None:
