@@ -24,6 +24,7 @@ SUBCOMMAND_MODULES = (
     "workbench.cli.compare",
     "workbench.cli.crossover",
     "workbench.cli.fit",
+    "workbench.cli.thermal",
 )
 
 EXIT_OK = 0
