@@ -110,7 +110,12 @@ def add_capture_options(p: argparse.ArgumentParser, *, required: bool = True) ->
     g.add_argument("--area", required=required, help="effective core area A_e, e.g. 52mm2 or 5.2e-5 [m^2]")
     g.add_argument("--volume", help="effective core volume V_e, e.g. 5.6cm3 [m^3] (default A_e * l_e)")
     g.add_argument("--path-length", help="effective magnetic path length l_e, e.g. 107mm [m]")
-    g.add_argument("--sense-turns", help="turns N2 of the sense winding (two-winding captures)")
+    g.add_argument("--sense-turns", help="turns N2 of the sense winding: the voltage channel is the sense winding's "
+                                         "and a current channel must exist (two-winding method)")
+    g.add_argument("--winding-resistance", help="resistance R of the winding of a single-winding V-I capture, e.g. "
+                                                "0.8 or 800m [ohm]: R i is taken off the voltage and I_rms^2 R off the loss")
+    g.add_argument("--deskew", help="delay of the current probe against the voltage probe, e.g. 3ns [s]: the current "
+                                    "is shifted back by it before the loss integral")
     r = p.add_argument_group("reading the file")
     r.add_argument("--time-column", help="time column: header name or 0-based index")
     r.add_argument("--column", action="append", metavar="CHANNEL=COLUMN",
@@ -129,6 +134,9 @@ def capture_settings(args) -> dict:
         "volume": quantity(args.volume, "m3", "--volume"),
         "path_length": quantity(args.path_length, "m", "--path-length"),
         "sense_turns": quantity(args.sense_turns, "", "--sense-turns"),
+        "winding_resistance": quantity(getattr(args, "winding_resistance", None), "ohm", "--winding-resistance",
+                                       positive=False),
+        "deskew": quantity(getattr(args, "deskew", None), "s", "--deskew", positive=False),
     }
 
 
@@ -178,6 +186,8 @@ def render(result) -> str:
     if result.model_name:
         rows.append(("model", result.model_name + (f" ({result.model.total_model})" if result.model else " (iGSE)")))
     rows.append(("model loss", _fmt(result.model_loss, "W/m3")))
+    if result.loss_w is not None:
+        rows.append(("  in the core", _fmt(result.loss_w, "W")))
     if result.model is not None and result.model.n_minor_loops:
         rows.append(("  from minor loops", f"{100 * result.model.minor_loop_share:.1f} % "
                                            f"({result.model.n_minor_loops} loop{'' if result.model.n_minor_loops == 1 else 's'})"))
@@ -188,8 +198,10 @@ def render(result) -> str:
                  ("  excess", _fmt(result.excess, "W/m3"))]
     elif result.classical is not None:
         rows.append(("classical eddy part", _fmt(result.classical, "W/m3")))
-    if result.kind == "two-winding":
-        rows.append(("measured loss", _fmt(result.measured_loss, "W/m3")))
+    if result.measured_method is not None:
+        rows.append((f"measured loss ({result.measured_method})", _fmt(result.measured_loss, "W/m3")))
+        if result.measured_loss_w is not None:
+            rows.append(("  in the core", _fmt(result.measured_loss_w, "W")))
         if result.ratio is not None:
             rows.append(("measured / model", f"{result.ratio:.3f}"))
         if result.skew_sensitivity is not None:
@@ -213,9 +225,10 @@ def register(subparsers) -> argparse.ArgumentParser:
         help="analyse one captured waveform file: flux, measured and predicted loss",
         description=(
             "Analyse one capture (CSV or .npz): flux density b or flux, a winding voltage v, or a "
-            "two-winding record (primary current i and sense voltage v_sense). Finds the period, "
-            "averages whole periods, removes noise, and reports the flux, the model loss and, for "
-            "two-winding captures, the measured loss. " + CAUTION
+            "two-winding record (current i and sense voltage v_sense, or v with --sense-turns), or the "
+            "voltage and current of one winding (single-winding V-I). Finds the period, averages whole "
+            "periods, removes noise, and reports the flux, the model loss and, with a current, the "
+            "measured loss; watts in the core with --volume or --path-length. " + CAUTION
         ),
     )
     p.add_argument("file", metavar="FILE", help="capture file (CSV or .npz)")
