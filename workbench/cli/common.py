@@ -54,7 +54,8 @@ def shape_or_capture(args, *, need_freq: bool = True):
         for option in ("turns", "area"):
             if geometry.get(option) is None:
                 raise ValueError(f"--capture needs --{option}")
-        result = analyse_file(Path(capture), reader_options=reader_options(args), **geometry)
+        # the capture is analysed with the same model settings, so its warnings are about this question
+        result = analyse_file(Path(capture), reader_options=reader_options(args), **geometry, **model_settings(args))
         return result.waveform, result, {"capture": str(capture), "frequency_hz": result.freq, "b_peak_t": result.b_peak}
     shape = args.shape or "sine"
     if args.b_peak is None:
