@@ -130,11 +130,9 @@ class TemperatureCoefficients:
         ValueError
             If any temperature is not finite.
         """
-        t = np.asarray(temperature, dtype=float)
-        if not np.all(np.isfinite(t)):
-            raise ValueError(f"temperature must be finite [degC]; got {temperature!r}")
-        result = self.ct0 - self.ct1 * t + self.ct2 * t * t
-        return float(result) if result.ndim == 0 else result
+        from workbench.models.steinmetz import steinmetz_temperature_factor  # the one home of the formula
+
+        return steinmetz_temperature_factor(temperature, self.ct0, self.ct1, self.ct2)
 
 
 @dataclass(frozen=True)
