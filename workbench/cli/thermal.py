@@ -62,7 +62,8 @@ def register(subparsers) -> argparse.ArgumentParser:
     bias.add_argument("--h-dc", metavar="A_PER_M", help="DC bias field strength, e.g. 40 or 1.2kA/m [A/m]")
     bias.add_argument("--i-dc", help="DC winding current [A]; with --turns and --path-length: H_dc = N I_dc / l_e")
     p.add_argument("--json", action="store_true", help="print one JSON document (SI units)")
-    p.set_defaults(func=run)
+    # the capture is read with the shared model settings; the temperature is what this command finds
+    p.set_defaults(func=run, temperature=None, steinmetz=None)
     return p
 
 
@@ -146,7 +147,10 @@ def run(args) -> int:
         resistivity=quantity(args.resistivity, "ohm m", "--resistivity"), skin_effect=not args.no_skin)
     warnings = list(notes) + list(res.warnings)
     if capture is not None:
-        warnings = list(capture.warnings) + warnings
+        # the capture's own loss figures are not used here; keep its warnings about the waveform
+        own = [w for w in capture.warnings
+               if not any(x in w for x in ("model loss not computed", "measured loss", "no core temperature given"))]
+        warnings = own + warnings
     out = res.to_dict()
     out["warnings"] = list(dict.fromkeys(warnings))
     out["inputs"] = {**described, "material": material.name, "volume_m3": volume, "ambient_c": ambient,
