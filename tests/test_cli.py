@@ -173,11 +173,77 @@ def test_folder_refuses_to_clobber_existing_outputs(bench, tmp_path):
     assert (tmp_path / "run.jsonl").read_text() == "keep me\n"
 
 
-def test_folder_with_output_in_a_missing_folder_leaves_nothing(bench, tmp_path):
-    before = sorted(p.name for p in tmp_path.rglob("*"))
-    proc = wb("folder", str(bench), "--out", str(tmp_path / "missing" / "run"), *FOLDER_OPTS)
-    _one_error_line(proc, "missing")
-    assert sorted(p.name for p in tmp_path.rglob("*")) == before
+def test_folder_creates_a_missing_output_folder(bench, tmp_path):
+    # the README example (--out results/run1) on a fresh clone: results/ does not exist yet
+    proc = wb("folder", str(bench), "--out", str(tmp_path / "results" / "run1"), "--json", *FOLDER_OPTS)
+    assert proc.returncode == 1  # broken.csv
+    assert json.loads(proc.stdout)["files_analysed"] == 2
+    assert (tmp_path / "results" / "run1.jsonl").exists()
+
+
+def test_folder_bad_option_creates_no_folder(bench, tmp_path):
+    proc = wb("folder", str(bench), "--out", str(tmp_path / "missing" / "run"), *FOLDER_OPTS, "--temperature", "-300")
+    _one_error_line(proc, "--temperature")
+    assert not (tmp_path / "missing").exists()
+
+
+def test_folder_accepts_temperature_and_echoes_the_settings(bench, tmp_path):
+    proc = wb("folder", str(bench), "--out", str(tmp_path / "run"), "--json", *FOLDER_OPTS, "--temperature", "60")
+    assert proc.returncode == 1, proc.stderr
+    summary = json.loads(proc.stdout)
+    assert summary["settings"]["temperature"] == "60" and summary["files_analysed"] == 2
+
+
+def test_folder_summary_shows_errors_and_warnings_first(bench, tmp_path):
+    proc = wb("folder", str(bench), "--out", str(tmp_path / "run"), *FOLDER_OPTS)
+    assert proc.returncode == 1
+    lines = proc.stdout.splitlines()
+    assert lines[0].startswith("analysed 2 file(s): 1 failed, ") and " with warnings" in lines[0]
+    assert lines[1].startswith("  error: broken.csv: ")
+    summary = json.loads((tmp_path / "run.summary.json").read_text())
+    assert summary["problems"][0]["status"] == "error"
+    n_warned = sum(1 for line in (tmp_path / "run.jsonl").read_text().splitlines()
+                   if json.loads(line).get("warnings"))
+    assert summary["files_with_warnings"] == n_warned
+    assert [p["status"] for p in summary["problems"]] == ["error"] + ["warning"] * n_warned
+
+
+def test_folder_progress_is_quiet_when_piped_and_live_on_a_terminal(bench, tmp_path):
+    import io
+
+    from workbench.cli.folder import _Progress
+
+    proc = wb("folder", str(bench), "--out", str(tmp_path / "run"), *FOLDER_OPTS)
+    assert "\r" not in proc.stderr and "[1/3]" not in proc.stderr
+
+    class Tty(io.StringIO):
+        def isatty(self):
+            return True
+
+    tty = Tty()
+    progress = _Progress(3, tty)
+    for name, status in (("a.csv", "ok"), ("b.csv", "error"), ("c.csv", "skipped")):
+        progress({"file": f"/x/{name}", "status": status})
+    progress.close()
+    text = tty.getvalue()
+    assert "[1/3] 0 failed  a.csv" in text and "[3/3] 1 failed  c.csv" in text and text.endswith("\r")
+
+
+def test_folder_caps_jobs_at_the_cores(bench, tmp_path):
+    cores = len(os.sched_getaffinity(0))
+    proc = wb("folder", str(bench), "--out", str(tmp_path / "run"), "--jobs", "256", "--json", *FOLDER_OPTS)
+    assert proc.returncode == 1
+    assert f"--jobs 256 capped at the {cores} core(s) available" in proc.stderr
+
+
+def test_library_wording_becomes_option_wording():
+    from workbench.cli.folder import cli_wording
+
+    assert cli_wording("no time column; give it with time_column= or a sample interval") == (
+        "no time column; use --time-column or a sample interval")
+    assert cli_wording("a decimal comma: pass decimal=','") == "a decimal comma: use --decimal"
+    assert cli_wording("pass columns= or channels=") == "use --column CHANNEL=COLUMN or use --column CHANNEL=COLUMN"
+    assert cli_wording("nothing to change here") == "nothing to change here"
 
 
 @pytest.mark.skipif(hasattr(os, "geteuid") and os.geteuid() == 0, reason="root ignores directory permissions")

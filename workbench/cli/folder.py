@@ -30,6 +30,7 @@ import argparse
 import json
 import math
 import os
+import re
 import sys
 from pathlib import Path
 
@@ -58,7 +59,16 @@ DEFAULT_PATTERNS = ("*.csv", "*.txt", "*.npz")
 # pure pieces (no I/O beyond reading the one capture)
 # ---------------------------------------------------------------------------
 def settings_payload(args) -> dict:
-    """Analysis settings as plain JSON-able values (material by name), for workers and keys."""
+    """Analysis settings as plain JSON-able values (material by name), for workers and keys.
+
+    Every option is parsed here (and refused when it is not a plausible value), so that a
+    bad option stops the run before anything is written.
+    """
+    from workbench.cli.capture import quantity
+
+    quantity(args.temperature, "degC", "--temperature", positive=False)
+    quantity(args.thickness, "m", "--thickness")
+    quantity(args.resistivity, "ohm m", "--resistivity")
     return {
         "geometry": capture_settings(args),
         "reader": reader_options(args),
@@ -71,12 +81,28 @@ def settings_payload(args) -> dict:
     }
 
 
-def analyse_one(path: str, settings: dict, key: str) -> dict:
+#: API keyword -> command-line option, for messages of the library shown by this command
+_CLI_WORDS = {
+    "time_column": "--time-column", "columns": "--column CHANNEL=COLUMN", "channels": "--column CHANNEL=COLUMN",
+    "delimiter": "--delimiter", "decimal": "--decimal", "time_unit": "--time-unit", "units": "--unit CHANNEL=UNIT",
+    "sense_turns": "--sense-turns", "path_length": "--path-length", "winding_resistance": "--winding-resistance",
+}
+_API_WORD_RE = re.compile(r"\b(?:pass |give it with |argument |the keyword )?(" + "|".join(_CLI_WORDS) + r")=(?:'[^']*'|\S*)?")
+
+
+def cli_wording(message: str) -> str:
+    """A library message in command-line words: ``pass time_column=`` -> ``use --time-column``."""
+    return _API_WORD_RE.sub(lambda m: "use " + _CLI_WORDS[m.group(1)], message)
+
+
+def analyse_one(path: str, settings: dict, key: str, *, data: bytes | None = None) -> dict:
     """Analyse one file and return its result row; user errors become an error row.
 
-    Runs in a worker process: takes and returns plain data only.
+    Runs in a worker process: takes and returns plain data only. ``data`` is the file's
+    content when the batch already read it (the bytes hashed into ``key``).
     """
-    from workbench.analysis.capture import SteinmetzSet, analyse_file
+    from workbench.analysis.batch import analyse_content
+    from workbench.analysis.capture import SteinmetzSet
     from workbench.cli.capture import quantity
     from workbench.units import parse_quantity
 
@@ -89,8 +115,8 @@ def analyse_one(path: str, settings: dict, key: str) -> dict:
             material = get_material(settings["material"])
         elif settings["steinmetz"]:
             steinmetz = SteinmetzSet(*(parse_quantity(x, "", name="--steinmetz") for x in settings["steinmetz"]))
-        result = analyse_file(
-            path, reader_options=settings["reader"], material=material, steinmetz=steinmetz,
+        result = analyse_content(
+            path, data, reader_options=settings["reader"], material=material, steinmetz=steinmetz,
             temperature=quantity(settings["temperature"], "degC", "--temperature", positive=False),
             thickness=quantity(settings["thickness"], "m", "--thickness"),
             resistivity=quantity(settings["resistivity"], "ohm m", "--resistivity"),
@@ -98,19 +124,32 @@ def analyse_one(path: str, settings: dict, key: str) -> dict:
         )
     except (ValueError, OSError) as exc:
         text = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        row.update(status="error", error=text)
+        row.update(status="error", error=cli_wording(text))
         return row
     row.update(status="ok", error="")
     row.update(result.to_dict())
     row["file"] = path
+    row["warnings"] = [cli_wording(str(w)) for w in row.get("warnings") or ()]
     return row
 
 
+analyse_one.accepts_data = True
+
+
 def summarise(rows: list[dict], skipped: int) -> dict:
-    """Counts and the range of the model and measured loss over the successful rows."""
+    """Counts, the rows with errors and with warnings (those first), and the loss ranges.
+
+    ``problems`` lists the error rows, then the rows with warnings, each with its file and
+    first message; ``files_with_warnings`` counts successful rows that carry warnings.
+    """
     ok = [r for r in rows if r.get("status") == "ok"]
+    warned = [r for r in ok if r.get("warnings")]
     out = {"files_analysed": len(ok), "files_failed": len(rows) - len(ok), "files_skipped": skipped,
+           "files_with_warnings": len(warned),
            "failed": [{"file": r["file"], "error": r["error"]} for r in rows if r.get("status") != "ok"]}
+    out["problems"] = [{"file": f["file"], "status": "error", "message": f["error"]} for f in out["failed"]]
+    out["problems"] += [{"file": r["file"], "status": "warning", "message": str(r["warnings"][0]),
+                         "n_warnings": len(r["warnings"])} for r in warned]
     for key in ("loss_w_m3", "measured_loss_w_m3"):
         vals = [r[key] for r in ok if isinstance(r.get(key), (int, float)) and math.isfinite(r[key])]
         if vals:
@@ -161,8 +200,40 @@ def _files(folder: Path, patterns) -> list[Path]:
     return sorted(found)
 
 
+def _writable_ancestor(folder: Path) -> Path:
+    q = folder.absolute()
+    while not q.exists():
+        q = q.parent
+    return q
+
+
+class _Progress:
+    """``[12/40] name`` on one terminal line of stderr, rewritten in place; silent when not a terminal."""
+
+    def __init__(self, total: int, stream=None):
+        self.stream = stream if stream is not None else sys.stderr
+        self.live = bool(getattr(self.stream, "isatty", lambda: False)())
+        self.total, self.done, self.failed, self.width = total, 0, 0, 0
+
+    def __call__(self, row: dict) -> None:
+        self.done += 1
+        self.failed += row.get("status") == "error"
+        if self.live:
+            name = Path(str(row.get("file", ""))).name[:40]
+            text = f"[{self.done}/{self.total}] {self.failed} failed  {name}"
+            self.stream.write("\r" + text.ljust(self.width))
+            self.width = len(text)
+            self.stream.flush()
+
+    def close(self) -> None:
+        if self.live and self.width:
+            self.stream.write("\r" + " " * self.width + "\r")
+            self.stream.flush()
+
+
 def run(args) -> int:
     """Run ``workbench folder``; returns the exit status."""
+    from workbench.analysis.batch import usable_cores
     from workbench.cli.main import emit_json
 
     folder = Path(args.folder)
@@ -172,14 +243,18 @@ def run(args) -> int:
         jobs = int(args.jobs)
     except ValueError:
         raise ValueError(f"--jobs: expected a whole number, got {args.jobs!r}") from None
-    if not 1 <= jobs <= 256:
-        raise ValueError(f"--jobs: must be between 1 and 256, got {args.jobs!r}")
+    if jobs < 1:
+        raise ValueError(f"--jobs: must be at least 1, got {args.jobs!r}")
+    cores = usable_cores()
+    if jobs > cores and not args.scheduler:
+        sys.stderr.write(f"workbench folder: --jobs {jobs} capped at the {cores} core(s) available\n")
+        jobs = cores
     resume = args.resume and not args.overwrite
     stem = Path(args.out)
     out_dir = stem.parent if str(stem.parent) else Path(".")
-    if not out_dir.is_dir():
-        raise ValueError(f"--out: folder {str(out_dir)!r} does not exist")
-    if not os.access(out_dir, os.W_OK):
+    if out_dir.exists() and not out_dir.is_dir():
+        raise ValueError(f"--out: {str(out_dir)!r} is not a folder")
+    if not os.access(_writable_ancestor(out_dir), os.W_OK):
         raise ValueError(f"--out: folder {str(out_dir)!r} is not writable")
     jsonl, csv_path, summary_path = (Path(f"{stem}{ext}") for ext in (".jsonl", ".csv", ".summary.json"))
     existing = [q for q in (jsonl, csv_path) if q.exists()]
@@ -195,23 +270,35 @@ def run(args) -> int:
 
         get_material(args.material)
     patterns = args.pattern or DEFAULT_PATTERNS
-    files = [q for q in _files(folder, patterns) if q.resolve() not in {jsonl.resolve(), csv_path.resolve()}]
+    outputs = {q.absolute() for q in (jsonl, csv_path, summary_path)}
+    files = [q for q in _files(folder, patterns) if q.absolute() not in outputs]
     if not files:
         raise ValueError(f"{args.folder}: no capture files matching {' '.join(patterns)}")
 
-    result = run_batch(
-        [str(q) for q in files], settings, jsonl=jsonl, csv_path=csv_path, task=analyse_one,
-        columns=CSV_COLUMNS, workers=jobs, scheduler=args.scheduler, resume=resume,
-    )
+    progress = _Progress(len(files))
+    try:
+        result = run_batch(
+            [str(q) for q in files], settings, jsonl=jsonl, csv_path=csv_path, task=analyse_one,
+            columns=CSV_COLUMNS, workers=jobs, scheduler=args.scheduler, resume=resume, on_row=progress,
+            make_folder=True,
+        )
+    finally:
+        progress.close()
     rows, skipped = list(result.rows), result.skipped
     summary = summarise(rows, skipped)
-    summary.update(outputs={"jsonl": str(jsonl), "csv": str(csv_path), "summary": str(summary_path)})
+    summary.update(outputs={"jsonl": str(jsonl), "csv": str(csv_path), "summary": str(summary_path)},
+                   notes=list(result.notes), settings=settings)
     write_text_atomic(summary_path, json.dumps(summary, indent=2, sort_keys=True) + "\n")
     if args.json:
         emit_json(summary)
     else:
-        print(f"analysed {summary['files_analysed']} file(s), {summary['files_failed']} failed, "
-              f"{skipped} skipped (already done)")
+        print(f"analysed {summary['files_analysed']} file(s): {summary['files_failed']} failed, "
+              f"{summary['files_with_warnings']} with warnings, {skipped} skipped (already done)")
+        problems = summary["problems"]
+        for item in problems[:20]:
+            print(f"  {item['status']}: {Path(item['file']).name}: {item['message']}")
+        if len(problems) > 20:
+            print(f"  ... and {len(problems) - 20} more (see {summary_path})")
         for key, label in (("loss_w_m3", "model loss"), ("measured_loss_w_m3", "measured loss")):
             if f"{key}_min" in summary:
                 print(f"{label}: {summary[key + '_min']:.4g} to {summary[key + '_max']:.4g} W/m3")
@@ -219,8 +306,7 @@ def run(args) -> int:
         print(CAUTION)
     if summary["files_failed"]:
         first = summary["failed"][0]
-        sys.stderr.write(
-            f"workbench folder: {summary['files_failed']} file(s) could not be analysed; first: {first['error']}\n"
-        )
+        line = f"workbench folder: {summary['files_failed']} file(s) could not be analysed; first: {first['error']}"
+        sys.stderr.write(line[:299] + "\n")
         return 1
     return 0
