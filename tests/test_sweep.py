@@ -180,5 +180,5 @@ def test_unknown_shape_and_bad_flux_are_rejected():
         crossover_frequency(steel_035(), b_peak=-1.0)
     with pytest.raises(ValueError, match=r"duty must lie in \(0, 1\), got 1\.0"):
         crossover_frequency(steel_035(), b_peak=1.0, shape="triangle", duty=1.0)
-    with pytest.raises(ValueError, match=r"thickness must be positive \[m\], got 0"):
+    with pytest.raises(ValueError, match=r"thickness must be finite and positive \[m\], got 0"):
         crossover_frequency(steel_035(), b_peak=1.0, thickness=0.0)

@@ -33,6 +33,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from workbench import models
+from workbench.checks import finite_number, positive_number
 from workbench.shapes import ShapeSpec
 from workbench.waveforms import FluxWaveform
 
@@ -132,22 +133,11 @@ def resolve_material(material):
 
 
 def _finite(value, name: str) -> float:
-    if isinstance(value, bool):
-        raise ValueError(f"{name} must be a number, got {value!r}")
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name} must be a number, got {value!r}") from None
-    if not math.isfinite(x):
-        raise ValueError(f"{name} must be finite, got {value!r}")
-    return x
+    return finite_number(value, name)
 
 
 def _positive(value, name: str, unit: str) -> float:
-    x = _finite(value, name)
-    if x <= 0:
-        raise ValueError(f"{name} must be positive [{unit}], got {value!r}")
-    return x
+    return positive_number(value, name, unit=unit)
 
 
 @dataclass(frozen=True)

@@ -24,6 +24,7 @@ import numpy as np
 
 from workbench import models
 from workbench.analysis.sweep import DEFAULT_FREQS, _shape
+from workbench.checks import positive_number
 from workbench.engine import Conditions, flux_scale_at_loss, loss_laws, resolve_material
 from workbench.shapes import ShapeSpec
 
@@ -37,13 +38,7 @@ __all__ = [
 
 
 def _positive_scalar(value, name: str) -> float:
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name} must be a positive number, got {value!r}") from None
-    if not np.isfinite(x) or x <= 0:
-        raise ValueError(f"{name} must be finite and positive, got {value!r}")
-    return x
+    return positive_number(value, name)
 
 
 def _freq_array(freqs) -> np.ndarray:
