@@ -59,13 +59,14 @@ from __future__ import annotations
 
 import importlib
 
-__all__ = ["FrequencyPanel", "ComparisonPanel", "CapturePanel", "FitPanel"]
+__all__ = ["FrequencyPanel", "ComparisonPanel", "CapturePanel", "FitPanel", "ThermalPanel"]
 
 _PANELS = {
     "FrequencyPanel": "workbench.ui.frequency",
     "ComparisonPanel": "workbench.ui.compare",
     "CapturePanel": "workbench.ui.capture",
     "FitPanel": "workbench.ui.fit_panel",
+    "ThermalPanel": "workbench.ui.thermal",
 }
 
 
