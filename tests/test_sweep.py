@@ -51,7 +51,7 @@ def test_crossover_closed_form_for_sine_without_skin_effect():
     expected = 6 * mat.resistivity * sep.k_hyst * b ** (sep.beta_hyst - 2) / (np.pi**2 * mat.thickness**2)
     res = crossover_frequency(mat, b_peak=b, skin_effect=False)
     assert res.method == "closed form"
-    assert res.freq == pytest.approx(expected, rel=1e-4)  # 1024-sample sine: (pi/1024)^2 accuracy
+    assert res.freq == pytest.approx(expected, rel=1e-12)  # the ideal sine, not a sampled one
     assert res.hysteresis_from == "separation"
 
 
@@ -79,7 +79,7 @@ def test_crossover_with_skin_effect_matches_independent_root_find():
     expected = brentq(g, 1.0, 1e5, xtol=1e-10, rtol=1e-12)
     res = crossover_frequency(mat, b_peak=b)
     assert res.method == "root find"
-    assert res.freq == pytest.approx(expected, rel=1e-4)
+    assert res.freq == pytest.approx(expected, rel=1e-9)
 
 
 def test_crossover_of_035_mm_silicon_steel_lies_in_the_hundreds_of_hertz():
@@ -119,11 +119,11 @@ def test_sweep_parts_follow_their_laws_in_frequency():
     b = 1.2
     f = np.geomspace(10.0, 1e5, 25)
     sw = sweep_frequency(mat, "sine", b_peak=b, freqs=f)
-    np.testing.assert_allclose(sw.total, st.k * f**st.alpha * b**st.beta, rtol=1e-5)
-    np.testing.assert_allclose(sw.hysteresis, sep.k_hyst * f * b**sep.beta_hyst, rtol=1e-5)
+    np.testing.assert_allclose(sw.total, st.k * f**st.alpha * b**st.beta, rtol=1e-12)
+    np.testing.assert_allclose(sw.hysteresis, sep.k_hyst * f * b**sep.beta_hyst, rtol=1e-12)
     np.testing.assert_allclose(sw.excess, 8.763 * sep.k_excess * (f * b) ** 1.5, rtol=1e-3)
     expected_cl = classical_sine(f, b, mat.resistivity, mat.thickness, mat.rel_permeability)
-    np.testing.assert_allclose(sw.classical, expected_cl, rtol=1e-5)
+    np.testing.assert_allclose(sw.classical, expected_cl, rtol=1e-9)
     np.testing.assert_allclose(sw.separation_total, sw.hysteresis + sw.classical + sw.excess, rtol=1e-12)
     np.testing.assert_allclose(sw.energy_per_cycle(sw.total), sw.total / f)
     lo, hi = st.freq_range
