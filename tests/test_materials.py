@@ -532,8 +532,8 @@ def test_save_user_material_round_trip(tmp_path, monkeypatch, library):
     assert get_material("bench-sample-B").thickness == 0.3e-3
     # bundled materials are still there, untouched
     assert _same_content(load_materials()["M270-35A"], library["M270-35A"])
-    # no temporary file left beside the library
-    assert sorted(p.name for p in target.parent.iterdir()) == ["materials.toml"]
+    # no temporary file left beside the library (the lock file of the saves stays, empty)
+    assert sorted(p.name for p in target.parent.iterdir()) == [".materials.toml.lock", "materials.toml"]
 
 
 def test_save_keeps_hand_written_comments_when_appending(tmp_path, library):
@@ -600,7 +600,7 @@ def test_failed_rename_leaves_old_file_and_no_temp(tmp_path, monkeypatch, librar
     with pytest.raises(OSError, match="simulated"):
         save_user_material(_user_copy(library, "bench-sample-B"), path=target)
     assert target.read_bytes() == before
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["user.toml"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == [".user.toml.lock", "user.toml"]
 
 
 def test_user_material_may_not_shadow_bundled(tmp_path, monkeypatch):
@@ -647,3 +647,43 @@ def test_separation_params_type_is_checked(library):
         material_to_toml(bad)
     ok = dataclasses.replace(library["M270-35A"], separation=SeparationParams(1.0, 2.0, 0.0))
     assert "k_excess = { value = 0.0" in material_to_toml(ok)
+
+
+# --- saves from several processes at once, symlinked library (issue 11 item 7) ---------------
+SAVER = """
+import dataclasses, sys
+from workbench.materials import load_materials, save_user_material
+base = load_materials(include_user=False)["M270-35A"]
+who, n, target = sys.argv[1], int(sys.argv[2]), sys.argv[3]
+for i in range(n):
+    m = dataclasses.replace(base, name=f"bench-{who}-{i}", origin="x",
+                            description="Invented demo sample for a concurrency test.")
+    save_user_material(m, path=target)
+"""
+
+
+def test_concurrent_saves_from_several_processes_lose_nothing(tmp_path):
+    import subprocess
+    import sys
+
+    target = tmp_path / "lib" / "materials.toml"
+    procs = [subprocess.Popen([sys.executable, "-c", SAVER, f"p{k}", "12", str(target)], stderr=subprocess.PIPE,
+                              text=True) for k in range(6)]
+    errors = [p.communicate(timeout=300)[1] for p in procs]
+    assert all(p.returncode == 0 for p in procs), errors
+    names = set(load_materials(target, include_user=False))
+    expect = {f"bench-p{k}-{i}" for k in range(6) for i in range(12)}
+    assert names == expect  # 72 saves, none lost (before the lock: about 1 in 10 lost)
+    assert not [p for p in target.parent.iterdir() if p.name.endswith(".tmp")]
+
+
+def test_symlinked_user_library_is_written_through_the_link(tmp_path, library):
+    real = tmp_path / "synced" / "my-materials.toml"
+    real.parent.mkdir()
+    save_user_material(_user_copy(library, "bench-sample-A"), path=real)
+    link = tmp_path / "cfg" / "materials.toml"
+    link.parent.mkdir()
+    link.symlink_to(real)
+    save_user_material(_user_copy(library, "bench-sample-B"), path=link)
+    assert link.is_symlink() and os.readlink(link) == str(real)
+    assert list(load_materials(real, include_user=False)) == ["bench-sample-A", "bench-sample-B"]

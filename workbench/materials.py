@@ -33,7 +33,7 @@ from types import MappingProxyType
 
 import numpy as np
 
-from workbench.fileio import write_text_atomic
+from workbench.fileio import locked, write_text_atomic
 
 __all__ = [
     "TemperatureCoefficients",
@@ -1035,7 +1035,9 @@ def save_user_material(material: Material, *, path=None, overwrite=False) -> Pat
     -----
     The new file content is written to a temporary file in the same directory
     and renamed over the library (``os.replace``), so a crash leaves either the
-    old or the new file. A new material is appended to the existing text, which
+    old or the new file; a symlinked library is written through the link. The
+    read-modify-write runs under an exclusive lock (:func:`workbench.fileio.locked`),
+    so saves from several processes at once all land. A new material is appended to the existing text, which
     keeps hand-written comments; replacing a material rewrites the file from
     its parsed content, which drops comments.
     """
@@ -1053,27 +1055,28 @@ def save_user_material(material: Material, *, path=None, overwrite=False) -> Pat
             f"{where}: material '{material.name}' has the name of the bundled material "
             f"'{bundled_names[material.name.casefold()]}'; choose another name")
 
-    if target.exists():
-        existing_text = target.read_text(encoding="utf-8")
-        existing = _parse_text(existing_text, where, where)
-    else:
-        existing_text, existing = _USER_HEADER, ()
-    same = [m for m in existing if m.name.casefold() == material.name.casefold()]
-    if same and not overwrite:
-        raise ValueError(f"{where}: material '{same[0].name}' already exists in the user "
-                         "library; pass overwrite=True to replace it")
-    block = material_to_toml(material)
-    if same:
-        parts = [_USER_HEADER]
-        for m in existing:
-            parts.append(block if m is same[0] else material_to_toml(m))
-        new_text = "\n".join(parts)
-    else:
-        sep = "" if existing_text.endswith("\n") or not existing_text else "\n"
-        new_text = existing_text + sep + "\n" + block
-    # never write something that would not load again
-    check = _parse_text(new_text, where, where)
-    if material.name not in {m.name for m in check}:
-        raise ValueError(f"{where}: internal error: '{material.name}' missing after save")
-    _write_atomic(target, new_text)
+    with locked(target, what="user material library"):  # read-modify-write: no save is lost
+        if target.exists():
+            existing_text = target.read_text(encoding="utf-8")
+            existing = _parse_text(existing_text, where, where)
+        else:
+            existing_text, existing = _USER_HEADER, ()
+        same = [m for m in existing if m.name.casefold() == material.name.casefold()]
+        if same and not overwrite:
+            raise ValueError(f"{where}: material '{same[0].name}' already exists in the user "
+                             "library; pass overwrite=True to replace it")
+        block = material_to_toml(material)
+        if same:
+            parts = [_USER_HEADER]
+            for m in existing:
+                parts.append(block if m is same[0] else material_to_toml(m))
+            new_text = "\n".join(parts)
+        else:
+            sep = "" if existing_text.endswith("\n") or not existing_text else "\n"
+            new_text = existing_text + sep + "\n" + block
+        # never write something that would not load again
+        check = _parse_text(new_text, where, where)
+        if material.name not in {m.name for m in check}:
+            raise ValueError(f"{where}: internal error: '{material.name}' missing after save")
+        _write_atomic(target, new_text)
     return target
