@@ -9,7 +9,7 @@ pytest.importorskip("jupyter_bokeh")
 
 from workbench.materials import get_material  # noqa: E402
 from workbench.ui import ComparisonPanel  # noqa: E402
-from workbench.ui.style import PALETTE  # noqa: E402
+from workbench.ui.style import MATERIAL_COLOURS  # noqa: E402
 
 NAMES = ("M270-35A", "fe-amorphous", "nanocrystalline", "mnzn-power-ferrite")
 
@@ -29,7 +29,7 @@ def test_one_line_per_material_with_distinct_styles(panel):
     data = panel.loss_source.data
     assert list(data["material"]) == list(NAMES)
     styles = set(zip(data["colour"], data["dash"]))
-    assert len(styles) == len(NAMES) and set(data["colour"]) <= set(PALETTE)
+    assert len(styles) == len(NAMES) and set(data["colour"]) <= set(MATERIAL_COLOURS)
     assert panel.loss_figure.name == "loss_by_material" and panel.fb_figure.name == "fb_by_material"
 
 

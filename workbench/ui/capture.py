@@ -2,29 +2,32 @@
 from __future__ import annotations
 
 import dataclasses
+import hashlib
 import html
 import io
 from pathlib import Path
 
 import ipywidgets as widgets
 from bokeh.layouts import column
-from bokeh.models import ColumnDataSource, HoverTool, Label
+from bokeh.models import ColumnDataSource, HoverTool
 from jupyter_bokeh import BokehModel
 
 import workbench
-from workbench.units import format_quantity
 from workbench.capture import read_capture
-from workbench.materials import list_materials
+from workbench.materials import get_material, list_materials
+from workbench.report import file_entry, material_entry
+from workbench.report.numbers import eng_column
+from workbench.report.plotting import apply_axis_format, hover_formatter
 from workbench.ui.base import PanelBase
 from workbench.ui.controls import ExportBar, QuantityText, caution_widget, heading
 from workbench.ui.state import CaptureSettings, CaptureView, capture_presets, capture_view
-from workbench.ui.style import FONT, ROLE_COLOURS, new_figure, style_figure
+from workbench.ui.style import ROLE_COLOURS, new_figure, style_figure
 
 __all__ = ["CapturePanel", "demo_capture_folder", "demo_captures"]
 
 _NO_MODEL = "(no model)"
 _UPLOAD_PREFIX = "uploaded: "
-_BOX = {"style": {"description_width": "190px"}, "layout": widgets.Layout(width="360px")}
+_BOX = {"style": {"description_width": "250px"}, "layout": widgets.Layout(width="430px")}
 
 
 def demo_capture_folder() -> Path:
@@ -79,6 +82,7 @@ class CapturePanel(PanelBase):
                  material: str | None = None):
         super().__init__()
         self._captures = {}  # dropdown key -> CaptureData (read once)
+        self._files = {}  # dropdown key -> file entry (name, size, SHA-256) for the report
         demos = demo_captures()
         options = list(demos) or ["(no demo captures found)"]
         preferred = "inverter_pwm_sisteel_50hz.csv"  # two-winding: B-H loop and measured loss
@@ -87,7 +91,7 @@ class CapturePanel(PanelBase):
             raise ValueError(f"capture {start!r} is not a bundled demo capture; available: {', '.join(demos)}")
         c = self.controls
         c.capture = widgets.Dropdown(options=options, value=start, description="capture (invented demos)", **_BOX)
-        c.capture.layout = widgets.Layout(width="560px")
+        c.capture.layout = widgets.Layout(width="600px")
         c.turns = QuantityText("", unit="", name="turns N1", description="turns N1 [-]", **_BOX)
         c.sense_turns = QuantityText("", unit="", name="sense turns N2", description="sense turns N2 [-] (optional)",
                                      **_BOX)
@@ -100,7 +104,8 @@ class CapturePanel(PanelBase):
                                       **_BOX)
         c.temperature = QuantityText("", unit="degC", name="core temperature",
                                      description="core temperature [°C] (optional)", **_BOX)
-        self.upload = widgets.FileUpload(accept=".csv,.txt,.npz", multiple=False, description="Upload capture")
+        self.upload = widgets.FileUpload(accept=".csv,.txt,.npz", multiple=False, description="Upload a capture",
+                                         layout=widgets.Layout(width="190px"))
 
         self.source = ColumnDataSource(data={"t": [], "t_display": [], "b": [], "dbdt": [], "h": []})
         self._build_figures()
@@ -115,6 +120,8 @@ class CapturePanel(PanelBase):
         self._wire(skip=("capture",))
         overrides = {"turns": turns, "sense_turns": sense_turns, "area": area, "volume": volume,
                      "path_length": path_length, "material": material}
+        for n in ("capture", "turns", "sense_turns", "area", "volume", "path_length", "material", "temperature"):
+            self.field(n)
         with self.hold():  # first result before the BokehModel is made, so the page starts with it
             if demos:
                 self._apply_presets(start)
@@ -122,19 +129,19 @@ class CapturePanel(PanelBase):
                 if value is not None:
                     getattr(c, name).value = value
             self._pending = True
+        f = self.fields
+        self.results_box.children = [self.summary_html, self.loss_html, BokehModel(self.plots), self.warnings_html]
         self.widget = widgets.VBox([
             heading("Captured waveform",
                     "One averaged period of flux, the B-H loop and where the loss goes; measured against predicted."),
-            widgets.HBox([c.capture, self.upload]),
-            widgets.HBox([widgets.VBox([c.turns, c.sense_turns, c.area, c.volume]),
-                          widgets.VBox([c.path_length, c.material, c.temperature])]),
-            self.summary_html,
-            self.loss_html,
-            BokehModel(self.plots),
-            self.warnings_html,
+            widgets.HBox([f["capture"], self.upload]),
+            widgets.VBox([f[n] for n in ("turns", "sense_turns", "area", "volume", "path_length", "material",
+                                         "temperature")]),
+            self.errors,
+            self.stale_html,
+            self.results_box,
             self.export_bar.widget,
             caution_widget(),
-            self.errors,
         ])
 
     # -- figures -------------------------------------------------------------------------
@@ -147,18 +154,20 @@ class CapturePanel(PanelBase):
         f2.x_range = f1.x_range
         r1 = f1.line("t_display", "b", source=src, color=ROLE_COLOURS["signal"], line_width=3)
         r2 = f2.step("t_display", "dbdt", source=src, mode="after", color=ROLE_COLOURS["derivative"], line_width=2.5)
-        f1.add_tools(HoverTool(renderers=[r1], mode="vline", tooltips=[("t", "@t_display{0.000}"), ("B", "@b{0.0000} T")]))
-        f2.add_tools(HoverTool(renderers=[r2], mode="vline",
-                               tooltips=[("t", "@t_display{0.000}"), ("dB/dt", "@dbdt{0.000a} T/s")]))
+        f1.add_tools(HoverTool(renderers=[r1], mode="vline", tooltips=[("t", "@t{eng}"), ("B", "@b{eng}")],
+                               formatters={"@t": hover_formatter("s"), "@b": hover_formatter("T")}))
+        f2.add_tools(HoverTool(renderers=[r2], mode="vline", tooltips=[("t", "@t{eng}"), ("dB/dt", "@dbdt{eng}")],
+                               formatters={"@t": hover_formatter("s"), "@dbdt": hover_formatter("T/s")}))
         self.loop_figure = f3 = new_figure("capture_bh_loop", title="B-H loop", x_label="field strength H [A/m]",
                                            y_label="flux density B [T]", width=560, height=460)
         r3 = f3.line("h", "b", source=src, color=ROLE_COLOURS["signal"], line_width=3)
-        f3.add_tools(HoverTool(renderers=[r3], tooltips=[("H", "@h{0.0} A/m"), ("B", "@b{0.0000} T")]))
-        self.no_loop_label = Label(x=20, y=200, x_units="screen", y_units="screen", text_font_size=FONT["label"],
-                                   text="No current channel (or no path length): no B-H loop", visible=False)
-        f3.add_layout(self.no_loop_label)
+        f3.add_tools(HoverTool(renderers=[r3], tooltips=[("H", "@h{eng}"), ("B", "@b{eng}")],
+                               formatters={"@h": hover_formatter("A/m"), "@b": hover_formatter("T")}))
         for f in (f1, f2, f3):
             style_figure(f, legend=False)
+        apply_axis_format(f1, x_unit="", y_unit="T")
+        apply_axis_format(f2, x_unit="", y_unit="T/s")
+        apply_axis_format(f3, x_unit="A/m", y_unit="T")
         self.plots = column(f1, f2, f3, name="capture_plots")
 
     # -- captures ------------------------------------------------------------------------
@@ -170,6 +179,7 @@ class CapturePanel(PanelBase):
             if not path.is_file():
                 raise ValueError(f"capture: no demo capture named {key!r} in {demo_capture_folder()}")
             self._captures[key] = read_capture(path)
+            self._files[key] = file_entry(path, role="capture")
         return self._captures[key]
 
     def _apply_presets(self, key: str):
@@ -197,6 +207,8 @@ class CapturePanel(PanelBase):
         data = dataclasses.replace(data, source=name)
         key = f"{_UPLOAD_PREFIX}{name}"
         self._captures[key] = data
+        self._files[key] = {"role": "capture (uploaded)", "name": name, "path": None, "bytes": len(bytes(content)),
+                            "sha256": hashlib.sha256(bytes(content)).hexdigest()}
         dd = self.controls.capture
         if key not in dd.options:
             dd.options = [*[o for o in dd.options if not str(o).startswith("(no demo")], key]
@@ -217,28 +229,41 @@ class CapturePanel(PanelBase):
         """The boxes read into SI settings (empty boxes are None)."""
         c = self.controls
 
-        def opt(box):
-            return box.si() if box.value.strip() else None
+        def opt(name):
+            box = getattr(c, name)
+            return self._read(name, lambda: box.si() if box.value.strip() else None)
 
         material = None if c.material.value == _NO_MODEL else c.material.value
-        return CaptureSettings(turns=opt(c.turns), sense_turns=opt(c.sense_turns), area=opt(c.area),
-                               volume=opt(c.volume), path_length=opt(c.path_length), material=material,
-                               temperature=opt(c.temperature))
+        return CaptureSettings(turns=opt("turns"), sense_turns=opt("sense_turns"), area=opt("area"),
+                               volume=opt("volume"), path_length=opt("path_length"), material=material,
+                               temperature=opt("temperature"))
 
     def _refresh(self):
         settings = self.settings()
-        data = self._data(self.controls.capture.value)
-        view = capture_view(data, settings)
+        data = self._read("capture", lambda: self._data(self.controls.capture.value))
+        try:
+            view = capture_view(data, settings)
+        except ValueError as exc:  # the analysis names the option it misses: mark that box
+            from workbench.ui.state import InputError
+
+            text = str(exc)
+            hits = [n for n, key in (("turns", "--turns"), ("sense_turns", "--sense-turns"), ("area", "--area"),
+                                     ("volume", "--volume"), ("path_length", "--path-length"),
+                                     ("temperature", "--temperature")) if key in text]
+            if hits:
+                raise InputError(tuple(hits), text) from None
+            raise
         self.view = view
         self.source.data = dict(view.period)
         for f in (self.flux_figure, self.dbdt_figure):
             f.xaxis.axis_label = f"time in the period [{view.time_unit}]"
-        self.no_loop_label.visible = not view.has_loop
+        # no current channel: no loop, and no empty box for it
+        self.loop_figure.visible = view.has_loop
         self.summary_html.value = f'<div style="font-size:1.1em" class="fluxheat-capture-summary">{html.escape(view.summary)}</div>'
         self.loss_html.value = self._loss_table(view)
         a = view.analysis
         items = [*(("warning", w) for w in a.warnings), *(("note", n) for n in a.notes)]
-        if a.skew_sensitivity is not None:
+        if a.skew_sensitivity is not None and not any("skew" in t or "delay" in t for _, t in items):
             items.append(("note", f"a 1 ns delay of the current probe changes the measured loss by "
                                   f"{100 * a.skew_sensitivity:.2g} %; deskew the probes before trusting it"))
         self.warnings_html.value = "".join(
@@ -246,29 +271,69 @@ class CapturePanel(PanelBase):
             for kind, text in items)
 
     @staticmethod
-    def _loss_table(view: CaptureView) -> str:
-        def num(x, fmt):
-            return "-" if x is None else format(x, fmt)
+    def _loss_columns(view):
+        cols = [("loss", None), ("loss density", "W/m3"), ("specific loss", "W/kg"), ("in this core", "W")]
+        rows = view.loss_rows
+        return [(i, name, unit) for i, (name, unit) in enumerate(cols)
+                if unit is None or any(r[i] is not None for r in rows)]
 
-        def density(x):
-            return "-" if x is None else format_quantity(x, "W/m3", 4).replace("W/m3", "W/m³")
+    @classmethod
+    def _loss_table(cls, view: CaptureView) -> str:
+        rows = view.loss_rows
+        if not rows:
+            return '<div class="fluxheat-loss-table">Choose a material for a prediction.</div>'
+        heads, texts = [], []
+        for i, name, unit in cls._loss_columns(view):
+            if unit is None:
+                heads.append(name)
+                texts.append([r[i] for r in rows])
+            else:
+                shown, numbers = eng_column([r[i] for r in rows], unit, 4)
+                heads.append(f"{name} [{shown}]")
+                texts.append(numbers)
+        head = "".join(f'<th style="padding:1px 10px;text-align:{"left" if j == 0 else "right"}">{html.escape(h)}</th>'
+                       for j, h in enumerate(heads))
+        body = "".join("<tr>" + "".join(
+            f'<td style="padding:1px 10px;text-align:{"left" if j == 0 else "right"}">{html.escape(t[k])}</td>'
+            for j, t in enumerate(texts)) + "</tr>" for k in range(len(rows)))
+        return (f'<table class="fluxheat-loss-table" style="font-size:1.05em;border-collapse:collapse">'
+                f"<tr>{head}</tr>{body}</table>")
 
-        head = "<tr><th>loss</th><th>loss density</th><th>W/kg</th><th>W in this core</th></tr>"
-        body = "".join(
-            f'<tr><td style="padding:1px 10px">{html.escape(label)}</td><td style="padding:1px 10px">{density(wm3)}</td>'
-            f'<td style="padding:1px 10px">{num(wkg, ".3g")}</td><td style="padding:1px 10px">{num(w, ".3g")}</td></tr>'
-            for label, wm3, wkg, w in view.loss_rows)
-        if not view.loss_rows:
-            body = '<tr><td colspan="4">choose a material for a prediction</td></tr>'
-        return f'<table style="font-size:1.05em;border-collapse:collapse">{head}{body}</table>'
+    def frequency_panel(self, **kwargs):
+        """A :class:`~workbench.ui.FrequencyPanel` sweeping this capture's averaged period.
+
+        The flux levels of the period are kept and its time is scaled to each frequency
+        (the library's ``sweep_frequency`` with a waveform). Keyword arguments go to the
+        panel (e.g. ``operating_freqs="50, 400"``); the material defaults to the one chosen here.
+        """
+        from workbench.ui.frequency import FrequencyPanel
+
+        if self.view is None or self.last_error is not None:
+            raise ValueError("no capture analysed: correct the inputs first")
+        material = kwargs.pop("material", None) or self.view.settings.material or "M270-35A"
+        name = Path(str(self.view.analysis.source)).name
+        return FrequencyPanel(material, waveform=self.view.analysis.waveform, waveform_name=name, **kwargs)
 
     # -- export --------------------------------------------------------------------------
     def record(self) -> dict:
         v = self.view
-        inputs = {"capture": v.analysis.source, **v.settings.to_dict()}
-        results = {**v.analysis.to_dict(),
+        a = v.analysis
+        key = self.controls.capture.value
+        inputs = {"capture": Path(str(a.source)).name, **v.settings.to_dict()}
+        results = {**a.to_dict(),
                    "loss_rows": [{"part": r[0], "w_m3": r[1], "w_kg": r[2], "w_in_core": r[3]} for r in v.loss_rows]}
-        return self._record(inputs, results)
+        cols = self._loss_columns(v)
+        keys = ("part", "loss_w_m3", "loss_w_kg", "loss_w")
+        table = {"columns": [{"name": name, "unit": unit, "key": keys[i]} for i, name, unit in cols],
+                 "rows": [[r[i] for i, _, _ in cols] for r in v.loss_rows]}
+        notes = list(a.notes)
+        if a.skew_sensitivity is not None and not any("skew" in n or "delay" in n for n in notes):
+            notes.append(f"a 1 ns delay of the current probe changes the measured loss by "
+                         f"{100 * a.skew_sensitivity:.2g} %; deskew the probes before trusting it")
+        material = material_entry(get_material(v.settings.material)) if v.settings.material else None
+        return self._record(inputs, results, files=[self._files[key]] if key in self._files else None,
+                            material=material, table=table, statements=[v.summary], warnings=list(a.warnings),
+                            notes=notes)
 
     def table(self) -> dict:
         p = self.view.period
@@ -279,5 +344,7 @@ class CapturePanel(PanelBase):
         """The loss table as plain text."""
         if self.view is None:
             return ""
-        return "\n".join(f"{label}: {wm3:.4g} W/m3" + ("" if wkg is None else f", {wkg:.3g} W/kg")
+        from workbench.report.numbers import eng
+
+        return "\n".join(f"{label}: {eng(wm3, 'W/m3', 4)}" + ("" if wkg is None else f", {eng(wkg, 'W/kg', 3)}")
                          for label, wm3, wkg, _ in self.view.loss_rows)

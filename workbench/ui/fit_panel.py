@@ -323,12 +323,14 @@ def fit_view(settings: FitSettings, *, colours=None) -> FitView:
 # ==========================================================================================
 import ipywidgets as widgets  # noqa: E402  (the widget half of the module)
 from bokeh.layouts import column  # noqa: E402
-from bokeh.models import ColumnDataSource, HoverTool, NumeralTickFormatter, Span  # noqa: E402
+from bokeh.models import ColumnDataSource, HoverTool, Span  # noqa: E402
 from jupyter_bokeh import BokehModel  # noqa: E402
 
 from workbench.materials import get_material, list_materials  # noqa: E402
+from workbench.report.plotting import apply_axis_format, hover_formatter  # noqa: E402
 from workbench.ui.base import PanelBase  # noqa: E402
 from workbench.ui.controls import ExportBar, QuantityText, caution_widget, heading  # noqa: E402
+from workbench.ui.state import InputError  # noqa: E402
 from workbench.ui.style import PALETTE, ROLE_COLOURS, new_figure, style_figure  # noqa: E402
 
 _WIDE = {"style": {"description_width": "170px"}, "layout": widgets.Layout(width="420px")}
@@ -419,21 +421,26 @@ class FitPanel(PanelBase):
         self.view: FitView | None = None
         self._temps_for: str | None = None
         self._wire(skip=("save_name", "save_like", "save_band", "save_overwrite"))
+        for n in ("path", "model", "flux_kind", "density", "temperature", "tolerance", "split", "band", "thickness",
+                  "resistivity", "fit_resistivity"):
+            self.field(n)
+        f = self.fields
+        self.results_box.children = [self.summary_html, self.params_html, BokehModel(self.plots), self.notes_html]
         self.widget = widgets.VBox([
             heading("Fit to a loss table", "Steinmetz (with iGSE for non-sine rows), loss separation or the "
                                            "two-frequency method, with 95 % intervals."),
-            widgets.HBox([c.path, self.demo_button]),
-            widgets.HBox([widgets.VBox([c.model, c.flux_kind, c.density, c.temperature]),
-                          widgets.VBox([c.tolerance, c.split, c.band, c.thickness, c.resistivity, c.fit_resistivity])]),
-            self.summary_html, self.params_html,
-            BokehModel(self.plots),
-            self.notes_html,
+            widgets.HBox([f["path"], self.demo_button]),
+            widgets.HBox([widgets.VBox([f[n] for n in ("model", "flux_kind", "density", "temperature")]),
+                          widgets.VBox([f[n] for n in ("tolerance", "split", "band", "thickness", "resistivity",
+                                                       "fit_resistivity")])]),
+            self.errors,
+            self.stale_html,
+            self.results_box,
             widgets.HBox([widgets.VBox([c.save_name, c.save_like]), widgets.VBox([c.save_band, c.save_overwrite]),
                           self.save_button]),
             self.save_status,
             self.export_bar.widget,
             caution_widget(),
-            self.errors,
         ])
         self._update()
 
@@ -446,11 +453,12 @@ class FitPanel(PanelBase):
         fig.multi_line("xs", "ys", source=self.line_source_extrapolated, line_color="colour", line_dash="dotted",
                        line_width=2, line_alpha=0.6)
         pts = fig.scatter("freq", "loss", source=self.points_source, size=9, fill_color="colour", line_color="#222222")
-        fig.add_tools(HoverTool(renderers=[pts], tooltips=[("row", "@row"), ("f", "@freq{0.[000]a}Hz"),
+        fig.add_tools(HoverTool(renderers=[pts], tooltips=[("row", "@row"), ("f", "@freq{eng}"),
                                                            ("B_peak", "@level"), ("shape", "@shape"),
-                                                           ("measured", "@loss{0.[000]a} W/m³"),
-                                                           ("fit", "@fitted{0.[000]a} W/m³"),
-                                                           ("error", "@rel_error_pct{0.0} %")]))
+                                                           ("measured", "@loss{eng}"), ("fit", "@fitted{eng}"),
+                                                           ("error", "@rel_error_pct{0.0} %")],
+                                formatters={"@freq": hover_formatter("Hz"), "@loss": hover_formatter("W/m3"),
+                                            "@fitted": hover_formatter("W/m3")}))
         fig.legend.location = "top_left"
         fig.legend.title = "B_peak"
         style_figure(fig)
@@ -469,8 +477,10 @@ class FitPanel(PanelBase):
                                                             ("error", "@rel_error_pct{0.0} %")]))
         self.energy_figure = en = new_figure("fit_energy", title="Energy per cycle P/f (straight line: W_h + s·f)",
                                              x_label="frequency f [Hz]", y_label="energy per cycle [J/m³]", height=300)
-        # a linear frequency axis (the method's straight line), labelled 0, 500k, 1M rather than 5.000e+5
-        en.xaxis.formatter = NumeralTickFormatter(format="0.[0]a")
+        # a linear frequency axis (the method's straight line), labelled 0, 500k, 1M (never 1m or 5.000e+5)
+        apply_axis_format(fig, x_unit="Hz", y_unit="W/m3")
+        apply_axis_format(res, x_unit="Hz", y_unit="")
+        apply_axis_format(en, x_unit="Hz", y_unit="J/m3")
         en.multi_line("xs", "ys", source=self.energy_source, line_color="colour", line_width=2.5)
         en.scatter("freq", "energy", source=self.points_source, size=8, fill_color="colour", line_color="#222222")
         self.plots = column(fig, res, en, name="fit_plots")
@@ -479,11 +489,31 @@ class FitPanel(PanelBase):
     def settings(self) -> FitSettings:
         """The controls read into SI settings (raises ValueError on unreadable input)."""
         c = self.controls
-        density = c.density.si() if c.density.value.strip() else None
-        return FitSettings(path=c.path.value.strip(), model=c.model.value, flux_kind=c.flux_kind.value,
-                           density=density, temperature=c.temperature.value, tolerance=c.tolerance.si(),
-                           split=bool(c.split.value), band=c.band.value, thickness=c.thickness.si(),
-                           resistivity=c.resistivity.si(), fit_resistivity=bool(c.fit_resistivity.value))
+        density = self._read("density", lambda: c.density.si() if c.density.value.strip() else None)
+        try:
+            return FitSettings(path=c.path.value.strip(), model=c.model.value, flux_kind=c.flux_kind.value,
+                               density=density, temperature=c.temperature.value,
+                               tolerance=self._read("tolerance", c.tolerance.si), split=bool(c.split.value),
+                               band=c.band.value, thickness=self._read("thickness", c.thickness.si),
+                               resistivity=self._read("resistivity", c.resistivity.si),
+                               fit_resistivity=bool(c.fit_resistivity.value))
+        except InputError:
+            raise
+        except ValueError as exc:
+            text = str(exc)
+            name = next((n for n in ("path", "tolerance", "thickness", "resistivity", "density") if text.startswith(n)),
+                        "path")
+            raise InputError((name,), text) from None
+
+    def _table_error(self, exc: ValueError) -> InputError:
+        """A reader or fit error, marked at the box it concerns (density, flux column or the file)."""
+        text = str(exc)
+        low = text.lower()
+        if "density" in low:
+            return InputError(("density",), text)
+        if "peak-to-peak" in low or "flux kind" in low or "flux_kind" in low:
+            return InputError(("flux_kind",), text)
+        return InputError(("path",), text)
 
     def _sync_temperatures(self):
         """Offer the table's temperatures when a new file is loaded (one recompute, no loop)."""
@@ -500,12 +530,22 @@ class FitPanel(PanelBase):
             c.temperature.value = None
 
     def _refresh(self):
-        self._sync_temperatures()
+        try:
+            self._sync_temperatures()
+        except InputError:
+            raise
+        except ValueError as exc:
+            raise self._table_error(exc) from None
         s = self.settings()
         c = self.controls
         c.tolerance.disabled = c.split.disabled = c.band.disabled = s.model != "steinmetz"
         c.thickness.disabled = c.resistivity.disabled = c.fit_resistivity.disabled = s.model != "separation"
-        view = fit_view(s, colours=PALETTE[:6])
+        try:
+            view = fit_view(s, colours=PALETTE[:6])
+        except ValueError as exc:
+            if s.model == "separation" and any(k in str(exc) for k in ("thickness", "resistivity")):
+                raise InputError(("thickness", "resistivity"), str(exc)) from None
+            raise self._table_error(exc) from None
         self.view = view
         pts = dict(view.points)
         pts["rel_error_pct"] = 100.0 * view.points["rel_error"]

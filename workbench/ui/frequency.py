@@ -408,6 +408,10 @@ class FrequencyPanel(PanelBase):
         cols = self._table_columns(view)
         heads, texts = [], []
         for name, unit, key in cols:
+            if key == "frequency_hz":  # the row's label: each in its own prefix
+                heads.append(name)
+                texts.append([eng(r[key], unit, 4) for r in rows])
+                continue
             shown, numbers = eng_column([r[key] for r in rows], unit, 4)
             heads.append(f"{name} [{shown}]")
             texts.append(numbers)

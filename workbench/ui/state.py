@@ -463,6 +463,10 @@ class ComparisonSettings:
         Sweep range [Hz].
     n_points : int
         Number of log-spaced frequencies.
+    per_mass : bool
+        Loss curves in W/kg instead of W/m^3.
+    volume : float or None
+        Core volume [m^3] for the loss in watts at the design frequency.
     """
 
     materials: tuple[str, ...] = ("M270-35A", "fe-amorphous", "nanocrystalline", "mnzn-power-ferrite")
@@ -474,9 +478,13 @@ class ComparisonSettings:
     f_min: float = 10.0
     f_max: float = 1e6
     n_points: int = 400
+    per_mass: bool = False
+    volume: float | None = None
 
     def __post_init__(self):
         _check_common(self.shape, self.duty, self.f_min, self.f_max, self.n_points)
+        if self.volume is not None:
+            _check_positive("volume", self.volume)
         if isinstance(self.materials, str) or not self.materials:
             raise InputError(("materials",), f"materials must be a non-empty sequence of names, got {self.materials!r}")
         object.__setattr__(self, "materials", tuple(self.materials))
@@ -489,6 +497,7 @@ class ComparisonSettings:
             "materials": list(self.materials), "shape": self.shape, "duty": self.duty, "b_peak_t": self.b_peak,
             "loss_density_w_m3": self.loss_density, "design_frequency_hz": self.design_freq,
             "f_min_hz": self.f_min, "f_max_hz": self.f_max, "n_points": self.n_points,
+            "loss_axis": "W/kg" if self.per_mass else "W/m3", "core_volume_m3": self.volume,
         }
 
 
@@ -502,11 +511,13 @@ class ComparisonView:
     comparison : workbench.analysis.compare.MaterialComparison
     loss_lines, loss_lines_extrapolated : dict
         Multi-line columns (``xs``, ``ys``, ``material``, ``colour``, ``dash``) of the loss
-        curves [Hz, W/m^3], inside and outside the fitted ranges (NaN elsewhere).
+        curves [Hz, W/m^3 or W/kg with ``per_mass``], inside and outside the fitted ranges
+        (NaN elsewhere).
     fb_lines, fb_lines_extrapolated : dict
         Same for f * B_peak [Hz, Hz T].
     summary_rows : tuple of dict
-        One row per material at the design frequency (computed there, not read off the grid).
+        One row per material at the design frequency (computed there, not read off the grid);
+        ``loss_w`` is the loss in the core volume [W] (None without a volume).
     best_fb : str or None
         Material with the largest f * B_peak inside its fitted ranges at the design frequency.
     notes : tuple of str
@@ -560,7 +571,8 @@ def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) 
     def lines(kind):
         ins, outs = [], []
         for c in cmp.curves:
-            values, valid = (c.loss, c.loss_valid) if kind == "loss" else (c.fb, c.fb_valid)
+            loss = c.loss_w_kg if s.per_mass else c.loss
+            values, valid = (loss, c.loss_valid) if kind == "loss" else (c.fb, c.fb_valid)
             a, b = _split(values, valid)
             ins.append(a)
             outs.append(b)
@@ -578,6 +590,7 @@ def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) 
             "frequency_hz": float(s.design_freq),
             "loss_w_m3": float(c.loss[0]),
             "loss_w_kg": float(c.loss_w_kg[0]),
+            "loss_w": None if s.volume is None else float(c.loss[0]) * s.volume,
             "loss_valid": bool(c.loss_valid[0]),
             "b_peak_at_loss_density_t": float(c.b_usable[0]),
             "saturation_limited": bool(c.saturation_limited[0]),
@@ -739,8 +752,9 @@ def capture_view(data, settings: CaptureSettings) -> CaptureView:
                 None if volume is None else float(value) * volume)
 
     rows = [row("hysteresis", a.hysteresis), row("classical eddy", a.classical), row("excess", a.excess)]
-    if a.hysteresis is not None and a.classical is not None and a.excess is not None:
-        rows.append(row("sum of the three parts", a.hysteresis + a.classical + a.excess))
+    sep_total = getattr(a.model, "separation_total", None) if a.model is not None else None
+    if sep_total is not None:
+        rows.append(row("sum of the three parts", sep_total))
     if a.model_loss is not None:
         label = f"{a.model.total_model if a.model is not None else 'iGSE'} prediction ({a.model_name})"
         rows.append(row(label, a.model_loss))
@@ -748,7 +762,7 @@ def capture_view(data, settings: CaptureSettings) -> CaptureView:
         rows.append(row("measured (two-winding)", a.measured_loss))
     summary = (f"Detected frequency {_hz(a.freq)}; {a.periods_used} whole periods averaged of "
                f"{a.periods_in_record:.3g} in the record (period-to-period spread {100 * a.spread:.2g} %); "
-               f"B_peak {a.b_peak * 1e3:.4g} mT, B_dc {w.b_dc * 1e3 + 0.0:.2f} mT; {a.waveform_class} waveform, "
+               f"B_peak {eng(a.b_peak, 'T', 4)}, B_dc {eng(w.b_dc if abs(w.b_dc) > 1e-4 * a.b_peak else 0.0, 'T', 3)}; {a.waveform_class} waveform, "
                f"flux rising for {100 * a.duty:.3g} % of the period; flux from {a.kind} channel(s).")
     if a.ratio is not None:
         summary += f" Measured / predicted = {a.ratio:.3g}."

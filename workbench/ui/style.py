@@ -18,6 +18,8 @@ __all__ = [
     "FONT",
     "EXTRAPOLATED_FILL",
     "series_style",
+    "MATERIAL_COLOURS",
+    "material_style",
     "style_figure",
     "new_figure",
 ]
@@ -96,3 +98,30 @@ def new_figure(name: str, *, title: str, x_label: str, y_label: str, x_log: bool
         tools="pan,wheel_zoom,box_zoom,reset,save", active_scroll=None,
     )
     return style_figure(fig, legend=False)
+
+
+#: Colours of materials in comparisons: the palette of M. Okabe and K. Ito, "Color Universal
+#: Design (CUD): how to make figures and presentations that are friendly to colorblind people"
+#: (2008), without its yellow (too pale on white).
+MATERIAL_COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+
+
+def material_style(name: str, names) -> tuple[str, str]:
+    """Colour and dash of a material, fixed by its place in the whole library (not in the selection).
+
+    Parameters
+    ----------
+    name : str
+        Material name.
+    names : sequence of str
+        Every material name, in library order (``workbench.materials.list_materials()``).
+
+    Returns
+    -------
+    (str, str)
+        The same pair for a material whatever else is selected.
+    """
+    names = list(names)
+    i = names.index(name) if name in names else len(names) + sum(map(ord, name))
+    n = len(MATERIAL_COLOURS)
+    return MATERIAL_COLOURS[i % n], SERIES_DASHES[(i // n) % len(SERIES_DASHES)]
