@@ -778,6 +778,9 @@ def thermal_operating_point(waveform, material, *, volume, ambient, cooling, win
         max_b, b_note = _max_b_peak(temps[sel], laws_at, freq, vol, pw, cooling, ta, limit, float(w.b_peak), mat)
         if b_note:
             warnings.append(b_note)
+        if h_dc:
+            warnings.append("max_b_peak_t counts the AC flux only: with DC bias the DC flux adds to it, and the peak "
+                            "must stay below the saturation flux density at temperature (not checked here)")
     if pw:
         warnings.append(f"winding loss {pw:.3g} W taken as constant; copper resistance rises about 0.39 %/K "
                         "(IEC 60028 annealed copper, from memory): give the winding loss at the expected temperature")
