@@ -243,7 +243,7 @@ def convection_coefficient(t_surface, t_ambient, height, *, method="churchill-ch
     height : float or array_like
         Height of the surface [m].
     method : {"churchill-chu", "simplified"}
-        ``"churchill-chu"``: :func:`nusselt_vertical_churchill_chu` with the air
+        Correlation [-]: ``"churchill-chu"``: :func:`nusselt_vertical_churchill_chu` with the air
         properties of :func:`air_properties` at the film temperature;
         ``"simplified"``: the laminar relation for air :math:`h = 1.42 (\\Delta T/L)^{1/4}`.
 
@@ -460,7 +460,8 @@ def handbook_heat_loss(temperature_rise, area):
     References
     ----------
     .. [1] Widely used empirical relation of magnetics design practice, from memory
-       (see :func:`handbook_temperature_rise`).
+       (see :func:`handbook_temperature_rise`); comparable fits in C. W. T. McLyman,
+       "Transformer and Inductor Design Handbook", 3rd ed., Marcel Dekker, 2004, ch. 6.
     """
     dt = _array(temperature_rise, "temperature_rise")
     a = _array(area, "area", positive=True)
@@ -535,7 +536,9 @@ def characteristic_height(area):
     References
     ----------
     .. [1] Common practice, no source: the cube as the stand-in for a compact wound
-       component in hand estimates.
+       component in hand estimates; for other characteristic lengths of bodies in free
+       convection see F. P. Incropera et al., "Fundamentals of Heat and Mass Transfer",
+       6th ed., Wiley, 2007, sec. 9.6 (from memory).
     """
     a = _array(area, "area", positive=True)
     return _out(np.sqrt(a / 6.0))
