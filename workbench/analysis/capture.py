@@ -163,6 +163,11 @@ class CaptureAnalysis:
         Relative change of the measured loss for the current delayed by a further 1 ns [1/ns].
     volume : float or None
         Effective core volume used [m^3] (given, or A_e l_e).
+    i_dc : float or None
+        Mean winding current over whole periods [A] (captures with a current channel).
+    h_dc : float or None
+        DC bias field strength the model loss was evaluated at [A/m]: given, or
+        ``N I_dc / l_e`` from the capture's own current.
     inputs : dict
         The settings as given (turns, sense turns, area, volume, path length, winding
         resistance, deskew, material, temperature, overrides), SI-suffixed keys.
@@ -194,6 +199,8 @@ class CaptureAnalysis:
     measured_method: str | None = None
     skew_sensitivity: float | None = None
     volume: float | None = None
+    i_dc: float | None = None
+    h_dc: float | None = None
     inputs: dict = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
     notes: tuple[str, ...] = field(default_factory=tuple)
@@ -249,6 +256,8 @@ class CaptureAnalysis:
             "loss_w": self.loss_w,
             "classical_w_m3": self.classical,
             "volume_m3": self.volume,
+            "i_dc_a": self.i_dc,
+            "h_dc_a_m": self.h_dc,
             "inputs": dict(self.inputs),
             "warnings": list(self.warnings),
             "notes": list(self.notes),
@@ -466,7 +475,7 @@ def classify_waveform(waveform: FluxWaveform, threshold: float | None = None) ->
 # model loss: the engine only
 # ---------------------------------------------------------------------------
 def predict_loss(waveform, material, steinmetz, threshold, *, temperature=None, thickness=None, resistivity=None,
-                 skin_effect=True):
+                 skin_effect=True, h_dc=None):
     """Model loss of one period of flux, from :func:`workbench.engine.core_loss` (kept for older callers).
 
     Parameters
@@ -485,6 +494,8 @@ def predict_loss(waveform, material, steinmetz, threshold, *, temperature=None, 
         Lamination thickness [m] and resistivity [ohm m] overrides.
     skin_effect : bool
         Skin effect in the classical part.
+    h_dc : float, optional
+        DC bias field strength [A/m].
 
     Returns
     -------
@@ -496,7 +507,7 @@ def predict_loss(waveform, material, steinmetz, threshold, *, temperature=None, 
     if chosen is None:
         return None, None, None, None, None, "", ["no material or Steinmetz set given: model loss not computed"], []
     r = core_loss(waveform, chosen, temperature=temperature, thickness=thickness, resistivity=resistivity,
-                  skin_effect=skin_effect, threshold=threshold)
+                  skin_effect=skin_effect, threshold=threshold, h_dc=h_dc)
     return r, r.total, r.hysteresis, r.classical, r.excess, r.material, list(r.warnings), list(r.notes)
 
 
@@ -839,6 +850,35 @@ def _inputs(s: _Settings, material, steinmetz, skin_effect) -> dict:
             "resistivity_ohm_m": s.resistivity, "skin_effect": bool(skin_effect)}
 
 
+#: DC current below this fraction of the current's AC amplitude counts as no bias (common practice, no source).
+DC_CURRENT_NEGLIGIBLE = 0.05
+
+
+def _dc_bias(tg, rows, plan, s: _Settings, period: float, periods_in_record: float, h_dc):
+    """(I_dc [A] or None, H_dc used [A/m] or None, warnings): the given bias, or N I_dc / l_e from the capture."""
+    warnings: list[str] = []
+    i_dc = None
+    if plan.current:
+        current = np.asarray(rows[plan.current], dtype=float)
+        step = float(tg[1] - tg[0])
+        n = max(1, min(current.size, int(round(int(periods_in_record) * period / step))))
+        i_dc = float(np.mean(current[:n]))  # whole periods only: a partial one would bias the mean
+        amplitude = 0.5 * float(np.ptp(current[:n]))
+        significant = abs(i_dc) > DC_CURRENT_NEGLIGIBLE * amplitude
+    if h_dc is not None:
+        return i_dc, float(h_dc), warnings
+    if i_dc is None or not significant:
+        return i_dc, None, warnings
+    if s.path_length is None or s.turns is None:
+        warnings.append(f"the capture carries a DC current of {i_dc:.4g} A but no --path-length was given: "
+                        "the loss is evaluated without DC bias")
+        return i_dc, None, warnings
+    bias = s.turns * i_dc / s.path_length
+    warnings.append(f"DC bias from the capture's mean current: H_dc = N I_dc / l_e = {s.turns:g} x {i_dc:.4g} A / "
+                    f"{s.path_length:.4g} m = {bias:.4g} A/m (in a gapped core the field in the material is lower)")
+    return i_dc, bias, warnings
+
+
 def analyse_record(
     t,
     channels,
@@ -858,6 +898,7 @@ def analyse_record(
     thickness: float | None = None,
     resistivity: float | None = None,
     skin_effect: bool = True,
+    h_dc: float | None = None,
 ) -> CaptureAnalysis:
     """Analyse a captured record given as arrays.
 
@@ -901,6 +942,9 @@ def analyse_record(
         Override the lamination thickness [m] and resistivity [ohm m].
     skin_effect : bool
         Include the skin effect in the classical part.
+    h_dc : float, optional
+        DC bias field strength [A/m]; by default ``N I_dc / l_e`` from the capture's
+        own mean current when it has a current channel and a path length is given.
 
     Returns
     -------
@@ -946,9 +990,11 @@ def analyse_record(
                               source=source)[1]
     warnings += [f"{x} (check the turns and the area)" for x in b_peak_w]
 
+    i_dc, bias, w = _dc_bias(tg, rows, plan, s, period, periods_in_record, h_dc)
+    warnings += w
     model, total, hyst, classical, excess, model_name, mwarn, mnotes = predict_loss(
         folded.waveform, material, steinmetz, folded.threshold, temperature=s.temperature, thickness=s.thickness,
-        resistivity=s.resistivity, skin_effect=skin_effect)
+        resistivity=s.resistivity, skin_effect=skin_effect, h_dc=bias)
     warnings += mwarn
     notes += mnotes
     m = _measure(tg, rows, plan, s, period, folded, total)
@@ -961,7 +1007,8 @@ def analyse_record(
         denoised=folded.denoised, duty=rising_fraction(folded.waveform), waveform_class=folded.waveform_class,
         h=m.h, model=model, model_loss=total, model_name=model_name, hysteresis=hyst, classical=classical,
         excess=excess, measured_loss=m.loss, measured_method=plan.method,
-        skew_sensitivity=m.sensitivity, volume=m.volume, inputs=_inputs(s, material, steinmetz, skin_effect),
+        skew_sensitivity=m.sensitivity, volume=m.volume, i_dc=i_dc, h_dc=bias,
+        inputs={**_inputs(s, material, steinmetz, skin_effect), "h_dc_a_m": h_dc},
         warnings=tuple(warnings), notes=tuple(notes),
     )
 

@@ -255,7 +255,7 @@ class MaterialComparison:
 
 
 def compare_materials(materials, shape="sine", *, b_peak: float | None = None, loss_density: float, duty: float = 0.5,
-                      freqs=None, temperature: float | None = None) -> MaterialComparison:
+                      freqs=None, temperature: float | None = None, h_dc: float | None = None) -> MaterialComparison:
     """Loss against frequency at one flux, and f * B_peak at one loss density, for several materials.
 
     Parameters
@@ -276,6 +276,8 @@ def compare_materials(materials, shape="sine", *, b_peak: float | None = None, l
         Frequencies [Hz]; default 400 points from 10 Hz to 1 MHz.
     temperature : float, optional
         Core temperature [degC] for materials with temperature coefficients.
+    h_dc : float, optional
+        DC bias field strength [A/m].
 
     Returns
     -------
@@ -318,7 +320,7 @@ def compare_materials(materials, shape="sine", *, b_peak: float | None = None, l
     warnings = []
     for m in mats:
         st = m.steinmetz
-        laws = loss_laws(wave, m, Conditions(temperature=temperature))
+        laws = loss_laws(wave, m, Conditions(temperature=temperature, h_dc=h_dc))
         warnings += [w if m.name in w else f"{m.name}: {w}" for w in laws.warnings]
         loss = laws.parts(f)["total"]
         b_loss = b * flux_scale_at_loss(laws, f, pv)

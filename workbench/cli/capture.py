@@ -68,6 +68,8 @@ def add_model_options(p: argparse.ArgumentParser, *, required: bool = False) -> 
     g.add_argument("--thickness", help="lamination thickness override, e.g. 0.35mm")
     g.add_argument("--resistivity", help="resistivity override, e.g. 52e-8 or '52 uohm cm' [ohm m]")
     g.add_argument("--no-skin", action="store_true", help="classical eddy part without the skin effect")
+    g.add_argument("--h-dc", metavar="A_PER_M", help="DC bias field strength, e.g. 60 [A/m] (a capture with a current "
+                                                     "channel and --path-length brings its own N I_dc / l_e)")
 
 
 def model_settings(args) -> dict:
@@ -79,6 +81,7 @@ def model_settings(args) -> dict:
         "thickness": quantity(args.thickness, "m", "--thickness"),
         "resistivity": quantity(args.resistivity, "ohm m", "--resistivity"),
         "skin_effect": not args.no_skin,
+        "h_dc": quantity(getattr(args, "h_dc", None), "A/m", "--h-dc", positive=False),
         "material": None,
         "steinmetz": None,
     }

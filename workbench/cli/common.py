@@ -79,4 +79,4 @@ def engine_conditions(args) -> dict:
     if material is None:
         raise ValueError("give --material NAME or --steinmetz K ALPHA BETA")
     return {"material": material, "temperature": s["temperature"], "thickness": s["thickness"],
-            "resistivity": s["resistivity"], "skin_effect": s["skin_effect"]}
+            "resistivity": s["resistivity"], "skin_effect": s["skin_effect"], "h_dc": s["h_dc"]}

@@ -28,6 +28,7 @@ def register(subparsers) -> argparse.ArgumentParser:
     add_shape_options(p, capture=False, b_peak_required=True)
     p.add_argument("--loss-density", help="allowed loss density, e.g. 200k [W/m^3]: reports B_peak and f*B_peak reached")
     p.add_argument("--temperature", help="core temperature [degC] (materials with temperature data)")
+    p.add_argument("--h-dc", metavar="A_PER_M", help="DC bias field strength [A/m]")
     p.add_argument("--json", action="store_true", help="print one JSON document (SI units)")
     p.set_defaults(func=run)
     return p
@@ -46,8 +47,9 @@ def run(args) -> int:
     spec, _, described = shape_or_capture(args)
     temperature = quantity(args.temperature, "degC", "--temperature", positive=False)
     budget = quantity(args.loss_density, "W/m3", "--loss-density")
+    h_dc = quantity(args.h_dc, "A/m", "--h-dc", positive=False)
     cmp = compare_materials(mats, spec.shape, b_peak=spec.b_peak, duty=spec.duty, freqs=[spec.freq],
-                            loss_density=budget if budget is not None else 1.0, temperature=temperature)
+                            loss_density=budget if budget is not None else 1.0, temperature=temperature, h_dc=h_dc)
     rows = []
     for c in cmp.curves:
         row = {"material": c.material, "loss_w_m3": float(c.loss[0]), "loss_w_kg": float(c.loss_w_kg[0]),
@@ -56,7 +58,7 @@ def run(args) -> int:
             row.update(b_peak_t=float(c.b_usable[0]), fb_hz_t=float(c.fb[0]),
                        saturation_limited=bool(c.saturation_limited[0]))
         rows.append(row)
-    out = {"frequency_hz": spec.freq, "temperature_c": temperature, "loss_density_w_m3": budget, **described,
+    out = {"frequency_hz": spec.freq, "temperature_c": temperature, "h_dc_a_m": h_dc, "loss_density_w_m3": budget, **described,
            "materials": rows, "warnings": list(cmp.warnings) + list(cmp.notes)}
     if args.json:
         emit_json(out)

@@ -19,8 +19,6 @@ from __future__ import annotations
 import argparse
 import re
 
-import numpy as np
-
 from workbench.cli.capture import CAUTION, quantity, table
 from workbench.cli.common import add_shape_options, shape_or_capture
 from workbench.units import format_quantity, parse_quantity
@@ -75,15 +73,8 @@ def _resistance(text):
 
 
 def _capture_h_dc(result):
-    """Time average of H over the captured period [A/m], or None without current and path length."""
-    if result is None or result.h is None:
-        return None
-    t = np.asarray(result.waveform.t, dtype=float)
-    h = np.asarray(result.h, dtype=float)
-    period = 1.0 / float(result.freq)
-    tt = np.append(t, t[0] + period)
-    hh = np.append(h, h[0])
-    return float(np.sum(0.5 * (hh[1:] + hh[:-1]) * np.diff(tt)) / period)
+    """The DC bias the capture analysis found from its own current (N I_dc / l_e) [A/m], or None."""
+    return None if result is None else result.h_dc
 
 
 def _bias(args, capture, geometry_warnings) -> tuple[float | None, str | None]:

@@ -1,0 +1,41 @@
+"""A capture's own DC current sets the DC bias of its model loss (H_dc = N I_dc / l_e).
+
+Reference: Ampere's law for a core without gap, H = N I / l_e (common practice, no source),
+with the DC current of the invented buck demo capture stated in its header (0.4 A).
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from workbench.analysis.capture import analyse_file
+from workbench.engine import core_loss
+
+BUCK = Path(__file__).resolve().parents[1] / "data" / "captures" / "buck_inductor_ferrite_dc.csv"
+TURNS, PATH_LENGTH, AREA, I_DC = 8, 55e-3, 30e-6, 0.4  # from the capture's header (invented demo)
+
+
+def test_capture_current_sets_the_bias_of_the_model_loss():
+    r = analyse_file(BUCK, turns=TURNS, area=AREA, path_length=PATH_LENGTH, material="mnzn-power-ferrite",
+                     temperature=60)
+    assert r.i_dc == pytest.approx(I_DC, rel=0.02)
+    assert r.h_dc == pytest.approx(TURNS * I_DC / PATH_LENGTH, rel=0.02)
+    assert any("H_dc = N I_dc / l_e" in w for w in r.warnings)
+    # the engine was asked the same question: the bias reached it
+    same = core_loss(r.waveform, "mnzn-power-ferrite", temperature=60, h_dc=r.h_dc, threshold=r.threshold)
+    assert r.model_loss == pytest.approx(same.total, rel=1e-12)
+    assert r.model.conditions.h_dc == r.h_dc
+    assert r.to_dict()["h_dc_a_m"] == r.h_dc
+
+
+def test_capture_current_without_path_length_is_stated_not_ignored():
+    r = analyse_file(BUCK, turns=TURNS, area=AREA, material="mnzn-power-ferrite", temperature=60)
+    assert r.h_dc is None
+    assert any("DC current" in w and "--path-length" in w for w in r.warnings)
+
+
+def test_given_bias_overrides_the_capture_own():
+    r = analyse_file(BUCK, turns=TURNS, area=AREA, path_length=PATH_LENGTH, material="mnzn-power-ferrite",
+                     temperature=60, h_dc=10.0)
+    assert r.h_dc == 10.0
