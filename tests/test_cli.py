@@ -319,3 +319,23 @@ def test_crossover_closed_form_without_skin_effect():
 
 def test_crossover_bad_flux_unit():
     _one_error_line(wb("crossover", "--material", "M270-35A", "--b-peak", "1.5 mm"), "--b-peak")
+
+
+def test_readme_folder_example_runs_on_a_fresh_clone(tmp_path):
+    import re
+    import shutil
+    import shlex
+
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    line = next(ln for ln in readme.splitlines() if "workbench folder" in ln and "--out" in ln)
+    argv = shlex.split(line.split("workbench", 1)[1])
+    clone = tmp_path / "clone"
+    shutil.copytree(ROOT / "data", clone / "data")  # a fresh clone: data, no results/ folder
+    proc = wb(*argv, cwd=clone)
+    assert proc.returncode == 0, proc.stderr
+    out = argv[argv.index("--out") + 1]
+    assert (clone / f"{out}.jsonl").is_file() and (clone / f"{out}.summary.json").is_file()
+    # and the materials hint of the README is a real command
+    assert re.search(r"materials show NAME", readme)
+    shown = wb("materials", "show", "M270-35A")
+    assert shown.returncode == 0 and "M270-35A" in shown.stdout
