@@ -323,8 +323,8 @@ def test_crossover_bad_flux_unit():
 
 def test_readme_folder_example_runs_on_a_fresh_clone(tmp_path):
     import re
-    import shutil
     import shlex
+    import shutil
 
     readme = (ROOT / "README.md").read_text(encoding="utf-8")
     line = next(ln for ln in readme.splitlines() if "workbench folder" in ln and "--out" in ln)
