@@ -75,3 +75,23 @@ def test_capture_command_json_never_holds_infinity():
     r = _cli("capture", CAPTURE, "--material", "mnzn-power-ferrite", "--turns", "12", "--area", "52mm2", "--json")
     assert r.returncode == 0, r.stderr
     json.loads(r.stdout, parse_constant=lambda c: pytest.fail(f"non-finite {c} in the JSON"))
+
+
+@pytest.mark.parametrize("call", [
+    lambda: __import__("workbench.models", fromlist=["steinmetz"]).steinmetz(1e308, 0.1, 1.0, 1.5, 2.5),
+    lambda: __import__("workbench.models", fromlist=["steinmetz"]).steinmetz(1e3, 0.1, 1e308, 1.5, 2.5),
+])
+def test_library_overflow_is_refused_not_returned_as_inf(call):
+    # 1e308 ** 1.5 overflows a double (IEEE 754 maximum ~1.8e308): the library must say so
+    with pytest.raises(ValueError, match="not finite .*overflow.*freq="):
+        call()
+
+
+def test_igse_overflow_is_refused():
+    from workbench.models import igse
+    from workbench.waveforms import FluxWaveform
+
+    w = FluxWaveform(np.array([0.0, 0.25, 0.5, 0.75]) * 1e-3, [0.0, 0.1, 0.2, 0.1], 1e-3)
+    with pytest.raises(ValueError, match="iGSE loss is not finite"):
+        igse(w, 1e308, 1.5, 2.5)
+    assert math.isfinite(igse(w, 1.0, 1.5, 2.5))

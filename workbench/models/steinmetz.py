@@ -10,7 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from workbench.checks import positive_array
+from workbench.checks import finite_result, positive_array
 from workbench.models.loops import LoopSet, decompose_loops, loop_abs_dbdt_integrals
 from workbench.waveforms import FluxWaveform
 
@@ -72,7 +72,9 @@ def steinmetz(freq, b_peak, k, alpha, beta):
     if not np.all(np.isfinite(b)) or np.any(b < 0):
         raise ValueError(f"b_peak must be finite and non-negative, got {b_peak!r}")
     _check_steinmetz(k, alpha, beta)
-    out = k * f**alpha * b**beta
+    with np.errstate(over="ignore", invalid="ignore"):
+        out = k * f**alpha * b**beta
+    finite_result(out, "Steinmetz loss", freq=freq, b_peak=b_peak, k=k)
     return float(out) if out.ndim == 0 else out
 
 
@@ -214,15 +216,19 @@ def igse_loops(waveform: FluxWaveform, k, alpha, beta, *, minor_loops: bool = Tr
         pp = waveform.flux_pp
         if pp == 0:
             return IgseResult(0.0, 0.0, 0.0, np.array([0.0]), np.array([0.0]), 0.0)
-        total = ki * pp ** (beta - alpha) * waveform.mean_abs_dbdt_power(alpha)
+        with np.errstate(over="ignore", invalid="ignore"):
+            total = ki * pp ** (beta - alpha) * waveform.mean_abs_dbdt_power(alpha)
+        finite_result(total, "iGSE loss", k=k, flux_pp=pp, period=waveform.period)
         return IgseResult(total, total, 0.0, np.array([pp]), np.array([total]), 0.0)
     if loops is None:
         loops = decompose_loops(waveform, threshold)
     if loops.flux_pp.size == 0:
         return IgseResult(0.0, 0.0, 0.0, loops.flux_pp, np.zeros(0), loops.threshold)
     integrals = loop_abs_dbdt_integrals(waveform, loops, alpha)
-    per_loop = ki * loops.flux_pp ** (beta - alpha) * integrals / waveform.period
-    total = float(per_loop.sum())
+    with np.errstate(over="ignore", invalid="ignore"):
+        per_loop = ki * loops.flux_pp ** (beta - alpha) * integrals / waveform.period
+        total = float(per_loop.sum())
+    finite_result(total, "iGSE loss", k=k, flux_pp=waveform.flux_pp, period=waveform.period)
     return IgseResult(total, float(per_loop[0]), float(per_loop[1:].sum()), loops.flux_pp, per_loop, loops.threshold)
 
 
