@@ -113,3 +113,17 @@ def test_refusals_name_the_problem():
     h[:3] = 7.0
     with pytest.raises(ValueError, match="7 A/m has 3 point"):
         fit_bias(loss_table_from_arrays(t.freq, t.b_peak, t.loss, h_dc=h))
+
+
+def test_single_set_fits_refuse_to_pool_bias_levels():
+    # one Steinmetz set over rows at several DC-bias levels answers a question nobody asked
+    # (common practice, no source: bias changes k, alpha and beta); the refusal points to fit_bias
+    from pathlib import Path
+
+    from workbench.analysis.loss_table import read_loss_table
+    from workbench.fitting import fit_separation, fit_steinmetz, fit_two_frequency
+
+    table = read_loss_table(Path(__file__).resolve().parents[1] / "data" / "demo_bias_loss_table.csv")
+    for fit in (fit_steinmetz, fit_separation, fit_two_frequency):
+        with pytest.raises(ValueError, match="DC-bias levels .* fit_bias"):
+            fit(table)

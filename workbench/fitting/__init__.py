@@ -13,6 +13,8 @@ Four fits, each returning a frozen result object with named fields and ``to_dict
   resistivity fitted too.
 * :func:`fit_two_frequency` -- energy per cycle against frequency at each flux level:
   hysteresis energy (intercept), eddy slope and the crossover frequency.
+* :func:`fit_bias` -- one Steinmetz set per DC-bias level of a table with an ``h_dc`` or
+  ``b_dc`` column (the other fits refuse to pool rows from several bias levels).
 
 :func:`fitted_material` and :func:`save_fitted_material` turn a fit into a user material.
 
@@ -20,6 +22,7 @@ The modules follow the fits: ``steinmetz``, ``bands``, ``separation``, ``two_fre
 ``material``; ``tables`` holds the waveform constants of table rows.
 """
 from workbench.fitting.bands import SteinmetzBands, fit_steinmetz_bands
+from workbench.fitting.bias import BiasFit, fit_bias
 from workbench.fitting.material import fitted_material, save_fitted_material
 from workbench.fitting.separation import SeparationFit, fit_separation
 from workbench.fitting.steinmetz import SteinmetzFit, SteinmetzPrediction, fit_steinmetz
@@ -31,6 +34,8 @@ from workbench.fitting.two_frequency import (
 )
 
 __all__ = [
+    "BiasFit",
+    "fit_bias",
     "SeparationFit",
     "SteinmetzBands",
     "SteinmetzFit",

@@ -54,6 +54,14 @@ def _covariance(jac: np.ndarray, residuals: np.ndarray, dof: int) -> tuple[np.nd
 def _check_table(table) -> LossTable:
     if not isinstance(table, LossTable):
         raise ValueError(f"table must be a LossTable, got {type(table).__name__}")
+    for name, unit in (("h_dc", "A/m"), ("b_dc", "T")):
+        bias = getattr(table, name, None)
+        if bias is not None and np.ptp(bias) > 1e-6 * max(float(np.max(np.abs(bias))), 1e-12):
+            levels = np.unique(np.round(bias, 9))
+            raise ValueError(
+                f"{table.source}: rows at {levels.size} DC-bias levels ({name} {levels.min():g}-{levels.max():g} {unit}) "
+                "would be pooled into one set: fit each level with fit_bias (workbench.fitting), or keep one level"
+            )
     return table
 
 
