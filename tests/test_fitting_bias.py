@@ -124,6 +124,7 @@ def test_single_set_fits_refuse_to_pool_bias_levels():
     from workbench.fitting import fit_separation, fit_steinmetz, fit_two_frequency
 
     table = read_loss_table(Path(__file__).resolve().parents[1] / "data" / "demo_bias_loss_table.csv")
-    for fit in (fit_steinmetz, fit_separation, fit_two_frequency):
+    for fit, kw in ((fit_steinmetz, {}), (fit_separation, {"thickness": 0.35e-3, "resistivity": 5e-7}),
+                    (fit_two_frequency, {})):
         with pytest.raises(ValueError, match="DC-bias levels .* fit_bias"):
-            fit(table)
+            fit(table, **kw)
