@@ -339,3 +339,15 @@ def test_readme_folder_example_runs_on_a_fresh_clone(tmp_path):
     assert re.search(r"materials show NAME", readme)
     shown = wb("materials", "show", "M270-35A")
     assert shown.returncode == 0 and "M270-35A" in shown.stdout
+
+
+def test_folder_refuses_an_output_another_run_holds(bench, tmp_path):
+    import fcntl
+
+    with open(tmp_path / "run.jsonl.lock", "w") as holder:
+        fcntl.flock(holder.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+        holder.write("pid 777\n")
+        holder.flush()
+        proc = wb("folder", str(bench), "--out", str(tmp_path / "run"), *FOLDER_OPTS)
+    _one_error_line(proc, "being written by another run (pid 777)")
+    assert not (tmp_path / "run.jsonl").exists()
