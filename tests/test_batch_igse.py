@@ -1,4 +1,4 @@
-"""Tests of workbench.analysis.batch_igse: iGSE for many periods at once.
+"""Tests of workbench.models.batch (re-exported as workbench.analysis.batch_igse): iGSE for many periods at once.
 
 Checks, each with its source beside it:
 - closed forms of the iGSE for a triangle and a sine (Venkatachalam et al., IEEE COMPEL 2002),
@@ -19,9 +19,9 @@ import pytest
 import rainflow
 from scipy.integrate import quad
 
-from workbench.analysis import batch_igse
-from workbench.analysis.batch_igse import batch_thresholds, igse_batch
+from workbench.models import batch as batch_igse
 from workbench.models import igse
+from workbench.models.batch import batch_thresholds, igse_batch
 from workbench.waveforms import FluxWaveform, default_threshold
 
 
@@ -146,21 +146,43 @@ def quantised_ramp_rows(step):
     return np.array(rows)
 
 
-def test_threshold_from_quantisation_step_equals_single_waveform_function():
-    # The second differences are mostly 0, so the noise term is 0 and the reversal threshold is
-    # 2.5 quantisation steps (the rule of waveforms.default_threshold): the one-step reversals are
-    # not loops. Issue 6 specification, rtol 1e-9 against models.igse.
+def flicker_rows(step, rng):
+    """A slow sine with noise of 0.15 codes, rounded to codes: it dwells on codes and flickers."""
+    t = np.arange(1024) / 1024
+    return np.array([np.round((40 * np.sin(2 * np.pi * t + ph) + 0.15 * rng.normal(size=t.size))) * step
+                     for ph in rng.uniform(0, 6, 4)])
+
+
+def test_equal_steps_without_noise_keep_their_reversals_as_the_single_waveform_function():
+    # Equal steps are no evidence of noise (issue 9): the one-step dips of these noise-free rows are
+    # real reversals, counted by the batch as by models.igse (issue 6 specification, rtol 1e-9).
     step = 2e-3
     b = quantised_ramp_rows(step)
-    np.testing.assert_allclose(batch_thresholds(b), 2.5 * step, rtol=1e-12)  # 2.5 steps, exact multiples
+    assert np.all(batch_thresholds(b) < 1e-9)
+    got = igse_batch(b, 1e-4, 1.0, 1.5, 2.5)
+    expected = [single(row, 1e-4, 1.0, 1.5, 2.5) for row in b]
+    np.testing.assert_allclose(got, expected, rtol=1e-9)
+    # each row then has three minor loops: the rainflow package (ASTM E1049-85) counts them too
+    for row in b:
+        start = int(np.argmax(row))
+        closed = np.append(np.roll(row, -start), row[start])
+        assert sum(1 for c in rainflow.extract_cycles(closed) if c[2] == 1.0) == 3
+
+
+def test_threshold_from_quantisation_step_with_flicker_equals_single_waveform_function():
+    # quantised noisy rows flicker between codes: the threshold is 2.5 codes (the rule of
+    # waveforms.default_threshold) and the batch equals models.igse (rtol 1e-9)
+    step = 1e-3
+    b = flicker_rows(step, np.random.default_rng(31))
+    np.testing.assert_allclose(batch_thresholds(b), 2.5 * step, rtol=1e-12)
     got = igse_batch(b, 1e-4, 1.0, 1.5, 2.5)
     expected = [single(row, 1e-4, 1.0, 1.5, 2.5) for row in b]
     np.testing.assert_allclose(got, expected, rtol=1e-9)
 
 
 def test_long_periods_equal_single_waveform_function():
-    # 2**15 samples and more: the single-waveform reversal search uses the noise and span terms
-    # only (no quantisation term); issue 6 specification, rtol 1e-9 against models.igse
+    # 2**15 samples and more: the single-waveform reversal search takes its own long-record path;
+    # issue 6 specification, rtol 1e-9 against models.igse
     rng = np.random.default_rng(40)
     n = 40_000
     t = np.arange(n) / n
@@ -264,8 +286,12 @@ def test_thresholds_match_single_waveform_rule():
     rng = np.random.default_rng(3)
     b = random_rows(rng, 10, 200)
     np.testing.assert_array_equal(batch_thresholds(b), [default_threshold(row) for row in b])
-    q = quantised_ramp_rows(2e-3)  # threshold set by the quantisation step
+    q = quantised_ramp_rows(2e-3)  # equal steps, no noise
     np.testing.assert_array_equal(batch_thresholds(q), [default_threshold(row) for row in q])
+    f = flicker_rows(1e-3, rng)  # threshold set by the quantisation step
+    np.testing.assert_array_equal(batch_thresholds(f), [default_threshold(row) for row in f])
+    short = random_rows(rng, 10, 20)  # too few samples for any evidence of noise
+    np.testing.assert_array_equal(batch_thresholds(short), [default_threshold(row) for row in short])
 
 
 @pytest.mark.parametrize(

@@ -96,6 +96,44 @@ def test_random_sequence_with_samples_between_reversals_matches_rainflow():
     np.testing.assert_allclose(np.sort(loops.flux_pp), rainflow_full_cycle_ranges(levels), rtol=1e-10)
 
 
+CORNER_POINTS = (np.array([0, 0.12, 0.17, 0.20, 0.31, 0.60]) * 1e-3, [1.0, 0.0, 0.4, 0.2, 0.6, -1.0], 1e-3)
+
+
+def test_corner_point_waveform_keeps_every_loop_with_default_arguments():
+    # reference: ASTM E1049-85 rainflow counting (rainflow package) of the six corner points (issue 9:
+    # the default threshold used to read every corner as noise and keep only the major loop)
+    w = waveforms.FluxWaveform(*CORNER_POINTS)
+    loops = models.decompose_loops(w)
+    expected = rainflow_full_cycle_ranges(w.b)
+    assert expected.size == 3
+    np.testing.assert_allclose(np.sort(loops.flux_pp), expected, rtol=1e-12)
+
+
+def test_noise_free_pwm_on_16_samples_per_carrier_keeps_every_minor_loop():
+    # reference: rainflow package (ASTM E1049-85) on the same periodic sequence; issue 9 saw 188 of 312
+    # minor loops kept on such a waveform because its equal steps were taken for recorder codes
+    w = waveforms.pwm(1.0, 50.0, 50.0 * 313, 0.8, samples_per_carrier=16)
+    loops = models.decompose_loops(w)
+    expected = rainflow_full_cycle_ranges(w.b)
+    assert expected.size - 1 == 312
+    assert loops.n_minor == 312
+    np.testing.assert_allclose(np.sort(loops.flux_pp), expected, rtol=1e-10, atol=1e-13)
+
+
+def test_small_real_loop_on_a_coarsely_sampled_sine_is_kept():
+    # reference: rainflow package. A noise-free sine on 256 samples with a dip of 2.2e-3 (a real
+    # minor loop); the curvature of the sine is no evidence of noise
+    n = 256
+    t = np.arange(n) / n
+    b = np.sin(2 * np.pi * t)
+    b[62] -= 0.004  # just before the peak: down by about 2.2e-3 and back up
+    w = waveforms.FluxWaveform(t, b, 1.0)
+    loops = models.decompose_loops(w)
+    expected = rainflow_full_cycle_ranges(b)
+    assert expected.size == 2
+    np.testing.assert_allclose(np.sort(loops.flux_pp), expected, rtol=1e-12)
+
+
 # ---------------------------------------------------------------------------
 # conservation of the flux path (closed-form identity of rainflow counting)
 # ---------------------------------------------------------------------------

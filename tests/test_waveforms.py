@@ -376,15 +376,58 @@ def test_spectrum_and_slope_power_reject_bad_arguments():
         w.resample(1)
 
 
-def test_quantised_record_makes_no_spurious_loops():
-    # common practice, no source: an 8-bit record of clean flux flickers by one or two
-    # codes near its peaks; those flickers are not minor loops
+def test_clean_quantised_record_has_no_noise_and_no_spurious_reversal():
+    # closed form: rounding to codes is a monotone map, so an 8-bit record of a clean sine rises and
+    # falls exactly once per period; with no evidence of noise the threshold stays at the span term
     t = np.arange(4096) / 4096e3
     lsb = 0.1 / 127
     b = np.round(0.1 * np.sin(2 * np.pi * 1e3 * t) / lsb) * lsb
     assert waveforms.quantisation_step(b) == pytest.approx(lsb, rel=1e-9)
-    assert waveforms.default_threshold(b) >= 2 * lsb
+    assert waveforms.estimate_noise(b) == 0.0
+    assert waveforms.code_flicker(b) == 0
+    assert waveforms.default_threshold(b) < 1e-9
     assert waveforms.reversal_indices(b).size == 2
+
+
+@pytest.mark.parametrize("sigma_codes", [0.1, 0.2, 0.3, 1.0, 2.0])
+@pytest.mark.parametrize("n", [4096, 50_000])
+def test_quantised_noisy_record_makes_no_spurious_reversal(sigma_codes, n):
+    # common practice, no source: a clean sine plus white noise of 0.1-2 codes, rounded to 8 bits,
+    # flickers between codes near its peaks (hundreds of reversals at threshold 0); none of them is
+    # a loop. The record of 50 000 samples takes the long-record path of the reversal search.
+    t = np.arange(n) / n
+    lsb = 0.1 / 127
+    rng = np.random.default_rng(int(10 * sigma_codes) + n)
+    b = np.round((0.1 * np.sin(2 * np.pi * t) + sigma_codes * lsb * rng.standard_normal(n)) / lsb) * lsb
+    assert waveforms.reversal_indices(b, threshold=0.0).size > 20  # the flicker is there
+    assert waveforms.reversal_indices(b).size == 2
+
+
+def test_noise_free_pwm_has_no_noise_whatever_its_grid():
+    # closed form: flux linear between switching instants; with 16 samples per carrier period every
+    # step has the same size, which is no evidence of noise (issue 9)
+    w = waveforms.pwm(1.0, 50.0, 50.0 * 313, 0.8, samples_per_carrier=16)
+    assert waveforms.estimate_noise(w.b) == 0.0
+    assert waveforms.code_flicker(w.b) == 0
+    assert waveforms.default_threshold(w.b) < 1e-9 * w.flux_pp
+
+
+def test_few_samples_are_exact_vertices():
+    # fewer than NOISE_MIN_SAMPLES samples carry no statistical evidence of noise: a waveform given by
+    # its corner points keeps every reversal (issue 9)
+    b = np.array([1.0, 0.0, 0.4, 0.2, 0.6, -1.0])
+    assert waveforms.estimate_noise(b) == 0.0
+    assert waveforms.default_threshold(b) == pytest.approx(2e-12)
+    assert waveforms.reversal_indices(b).size == 6
+
+
+def test_smooth_curvature_is_not_noise():
+    # closed form: a noise-free sine on 256 samples has second differences of (2 pi/256)^2 B sin, which
+    # the old estimate read as 2.6e-4 B of noise; its third differences are (2 pi/256)^3 B cos, so the
+    # estimate falls below 1e-5 B and a real loop of 2e-3 B is kept
+    n = 256
+    b = np.sin(2 * np.pi * np.arange(n) / n)
+    assert waveforms.estimate_noise(b) < 1e-5
 
 
 def test_unquantised_samples_have_no_quantisation_step():

@@ -30,6 +30,8 @@ __all__ = [
     "from_samples",
     "from_voltage",
     "estimate_noise",
+    "code_flicker",
+    "default_threshold",
     "quantisation_step",
     "reversal_indices",
 ]
@@ -333,17 +335,45 @@ class FluxWaveform:
 # ---------------------------------------------------------------------------
 # Reversal detection with a noise threshold
 # ---------------------------------------------------------------------------
-#: Largest number of second differences :func:`estimate_noise` looks at; longer
+#: Largest number of differences :func:`estimate_noise` looks at; longer
 #: records are sampled at an even stride (the median of 2**16 values is known to
 #: about 0.5 %, plenty for a threshold of 12 sigma).
 NOISE_SAMPLE_SIZE = 1 << 16
+
+#: Fewer samples than this carry no statistical evidence of noise: every sample is
+#: taken as an exact vertex of the flux (a waveform given by its corner points).
+NOISE_MIN_SAMPLES = 32
+
+#: Standard deviation of white noise per unit median absolute 2nd and 3rd difference.
+_MAD2 = 0.6745 * np.sqrt(6.0)
+_MAD3 = 0.6745 * np.sqrt(20.0)
+#: Noise estimates below this many units of double rounding of max|b| are rounding.
+_ROUNDING = 64.0 * np.finfo(float).eps
+
+
+def _median(a: np.ndarray) -> float:
+    """Median of a 1-D array, overwriting it (the mean of the two middle values for an even size)."""
+    m = a.size
+    half = m // 2
+    if m % 2:
+        return float(np.partition(a, half)[half])
+    part = np.partition(a, (half - 1, half))
+    return 0.5 * (float(part[half - 1]) + float(part[half]))
+
+
+def _noise_stride(n: int, order: int) -> int:
+    """Stride at which :func:`estimate_noise` reads differences of the given order."""
+    return max(1, (n - order) // NOISE_SAMPLE_SIZE)
 
 
 def estimate_noise(b) -> float:
     """Robust estimate of the white-noise standard deviation in a sampled signal [same unit as b].
 
-    Uses the median absolute second difference, which ignores smooth content and
-    the corners of piecewise-linear flux.
+    From the median absolute second differences, or the third differences where
+    those give less than half of it: both ignore the corners of piecewise-linear
+    flux (a corner touches two or three differences, a minority) and both read
+    white noise alike, while smooth content (the curvature of a sine) enters the
+    second differences as (w dt)**2 and the third only as (w dt)**3.
 
     Parameters
     ----------
@@ -354,13 +384,21 @@ def estimate_noise(b) -> float:
     Returns
     -------
     float
-        Noise standard deviation [same unit as ``b``]; 0 for fewer than 5 samples.
+        Noise standard deviation [same unit as ``b``]; 0 for fewer than
+        ``NOISE_MIN_SAMPLES`` samples, where the samples are taken as exact
+        vertices (nothing in so few samples tells noise from corners), 0 for
+        noise-free piecewise-linear flux with more straight samples than corners,
+        and 0 below 64 units of rounding of max|b| (floating-point rounding).
 
     Notes
     -----
     For white noise of standard deviation s the second difference has standard
-    deviation sqrt(6)*s; the median absolute deviation of a normal variable is
-    0.6745 times its standard deviation, so ``s = median(|d2 b|) / (0.6745*sqrt(6))``.
+    deviation sqrt(6) s and the third sqrt(20) s; the median absolute deviation
+    of a normal variable is 0.6745 times its standard deviation:
+
+    .. math:: s_2 = \\frac{\\mathrm{med}|\\Delta^2 b|}{0.6745\\sqrt 6}, \\quad
+              s_3 = \\frac{\\mathrm{med}|\\Delta^3 b|}{0.6745\\sqrt{20}}, \\quad
+              s = s_3 \\text{ if } s_3 < s_2/2 \\text{ else } s_2
 
     References
     ----------
@@ -368,27 +406,76 @@ def estimate_noise(b) -> float:
        J. Am. Stat. Assoc. 69(346), 1974 (median absolute deviation).
     """
     b = np.asarray(b, dtype=float)
-    if b.size < 5:
+    if b.size < NOISE_MIN_SAMPLES:
         return 0.0
-    step = max(1, (b.size - 2) // NOISE_SAMPLE_SIZE)
-    d2 = b[2::step] - 2.0 * b[1:-1:step] + b[:-2:step]
-    a = np.abs(d2, out=d2)
-    m = a.size
-    half = m // 2
-    if m % 2:
-        med = float(np.partition(a, half)[half])
-    else:  # the mean of the two middle values, as np.median
-        part = np.partition(a, (half - 1, half))
-        med = 0.5 * (float(part[half - 1]) + float(part[half]))
-    return med / (0.6745 * np.sqrt(6.0))
+    s = _noise_stride(b.size, 2)
+    d2 = b[2::s] - 2.0 * b[1:-1:s] + b[:-2:s]
+    sigma2 = _median(np.abs(d2)) / _MAD2
+    if sigma2 <= _ROUNDING * max(float(b.max()), -float(b.min())):
+        return 0.0  # floating-point rounding of the samples, not noise
+    if s == 1 and _noise_stride(b.size, 3) == 1:
+        d3 = d2[1:] - d2[:-1]
+    else:
+        s = _noise_stride(b.size, 3)
+        d3 = (b[3::s] - 2.0 * b[2:-1:s] + b[1:-2:s]) - (b[2:-1:s] - 2.0 * b[1:-2:s] + b[:-3:s])
+    a3 = np.abs(d3, out=d3)
+    # smooth content dominates the second differences where the third-difference estimate is below
+    # half the second-difference one (more than half of |d3| below that level)
+    if 2 * np.count_nonzero(a3 < 0.5 * sigma2 * _MAD3) > a3.size:
+        return _median(a3) / _MAD3
+    return sigma2
+
+
+def code_flicker(b) -> int:
+    """Number of one-sample excursions from a dwell: evidence of noise in quantised samples [-].
+
+    Parameters
+    ----------
+    b : array_like
+        Samples [any unit]. Records longer than ``NOISE_SAMPLE_SIZE`` samples are
+        read at an even stride.
+
+    Returns
+    -------
+    int
+        Count of samples i with ``b[i-1] == b[i+1] != b[i]`` where the flux also
+        dwells on ``b[i-1]`` just before or on ``b[i+1]`` just after.
+
+    Notes
+    -----
+    Rounding to a recorder's codes is a monotone map, so a noise-free quantised
+    record rises and falls only where the flux does; it dwells on a code and
+    steps on. Leaving a code for one sample and coming straight back to it is
+    what noise of less than a code does near a code boundary, and such
+    flickers are invisible to the median-based noise estimate.
+    """
+    b = np.asarray(b, dtype=float)
+    if b.size < NOISE_MIN_SAMPLES:
+        return 0
+    s = _noise_stride(b.size, 4)
+    l2, l1, c, r1, r2 = (b[k : b.size - 4 + k : s] for k in range(5))
+    hit = (l1 == r1) & (c != l1) & ((l2 == l1) | (r2 == r1))
+    return int(np.count_nonzero(hit))
 
 
 #: Reversals smaller than this many noise standard deviations are treated as noise.
 NOISE_THRESHOLD_SIGMAS = 12.0
+#: With evidence of noise, quantised samples flicker by up to this many steps.
+QUANTISATION_THRESHOLD_STEPS = 2.5
+
+
+def _threshold(b: np.ndarray, span: float) -> float:
+    """:func:`default_threshold` with the peak-to-peak span given."""
+    sigma = estimate_noise(b)
+    h = max(NOISE_THRESHOLD_SIGMAS * sigma, 1e-12 * span)
+    q = _quantisation_step(b, span)
+    if q > 0 and (sigma > 0 or code_flicker(b) > 0):
+        h = max(h, QUANTISATION_THRESHOLD_STEPS * q)
+    return h
 
 
 def default_threshold(b) -> float:
-    """Reversal threshold derived from the data: 12 noise standard deviations [T].
+    """Reversal threshold derived from the evidence of noise in the data [T].
 
     Parameters
     ----------
@@ -398,15 +485,19 @@ def default_threshold(b) -> float:
     Returns
     -------
     float
-        Smallest flux swing counted as a reversal [T]: ``12 * estimate_noise(b)``,
-        at least 2.5 quantisation steps (:func:`quantisation_step`) and
-        ``1e-12`` times the peak-to-peak flux.
+        Smallest flux swing counted as a reversal [T]: ``12 * estimate_noise(b)``
+        and ``1e-12`` times the peak-to-peak flux; where the samples sit on a grid
+        of step q (:func:`quantisation_step`) and show noise (a noise estimate
+        above 0, or code flicker, :func:`code_flicker`), at least ``2.5 q``.
 
     Notes
     -----
     Twelve sigma keeps the chance that pure Gaussian noise on a 10-million-sample
     ramp fakes a reversal negligible (the largest of 1e7 normal samples is about
-    5.3 sigma, so a noise-made swing rarely exceeds 11 sigma).
+    5.3 sigma, so a noise-made swing rarely exceeds 11 sigma). A waveform with
+    no evidence of noise (corner points, noise-free PWM on any grid, a clean
+    quantised record) loses no reversal: equal steps alone are not taken as
+    recorder codes, and rounding alone makes no reversal.
 
     References
     ----------
@@ -415,9 +506,7 @@ def default_threshold(b) -> float:
     """
     b = np.asarray(b, dtype=float)
     span = float(np.ptp(b)) if b.size else 0.0
-    # samples quantised coarser than their noise (an 8-bit record of clean flux)
-    # flicker by one or two steps: such swings are not loops either
-    return max(NOISE_THRESHOLD_SIGMAS * estimate_noise(b), 2.5 * quantisation_step(b), 1e-12 * span)
+    return _threshold(b, span)
 
 
 def quantisation_step(b) -> float:
@@ -440,15 +529,23 @@ def quantisation_step(b) -> float:
     -----
     A recorder of B bits over a range R stores multiples of R / 2**B; where the
     signal moves by less than a few steps per sample its quantisation, not its
-    noise, sets the smallest swing that carries meaning.
+    noise, sets the smallest swing that carries meaning. Equal steps alone are
+    no evidence of a recorder (a noise-free PWM flux has them too): the step
+    matters to :func:`default_threshold` only with evidence of noise.
     """
     b = np.asarray(b, dtype=float)
+    if b.size < 5:
+        return 0.0
+    return _quantisation_step(b, float(np.ptp(b)))
+
+
+def _quantisation_step(b: np.ndarray, span: float) -> float:
+    """:func:`quantisation_step` with the peak-to-peak span given."""
     if b.size < 5:
         return 0.0
     step = max(1, (b.size - 1) // NOISE_SAMPLE_SIZE)
     d = np.abs(b[1::step] - b[:-1:step])
     d = d[d > 0]
-    span = float(np.ptp(b))
     if d.size < 10 or span == 0:
         return 0.0
     q = float(d.min())
@@ -590,7 +687,7 @@ def _reversals(b: np.ndarray, threshold: float | None):
             tail = b[extremes[0].size * _BLOCK :]
             hi = max(float(extremes[2].max()), float(tail.max(initial=-np.inf)))
             lo = min(float(extremes[3].min()), float(tail.min(initial=np.inf)))
-            h = max(NOISE_THRESHOLD_SIGMAS * estimate_noise(b), 1e-12 * (hi - lo))
+            h = _threshold(b, hi - lo)
         cand = _candidates(n, extremes, h)
     if cand is None:
         x = b

@@ -1,4 +1,5 @@
 """Pure loss formulas: loss per unit volume [W/m^3], no I/O, no plotting."""
+from workbench.models.batch import batch_thresholds, igse_batch
 from workbench.models.loops import LoopSet, decompose_loops, loop_abs_dbdt_integrals, loop_path_integrals
 from workbench.models.separation import (
     EXCESS_SINE_CONSTANT,
@@ -35,6 +36,7 @@ __all__ = [
     "I2gseResult",
     "IgseResult",
     "LoopSet",
+    "batch_thresholds",
     "classical_eddy",
     "classical_eddy_waveform",
     "decompose_loops",
@@ -45,6 +47,7 @@ __all__ = [
     "hysteresis_loss",
     "hysteresis_loss_waveform",
     "i2gse",
+    "igse_batch",
     "igse",
     "igse_coefficient",
     "igse_loops",
