@@ -132,7 +132,8 @@ def test_folder_writes_one_row_per_file_and_a_summary(bench, tmp_path, jobs):
     out.parent.mkdir()
     proc = wb("folder", str(bench), "--out", str(out), "--jobs", jobs, "--json", *FOLDER_OPTS)
     assert proc.returncode == 1  # one file failed; its row carries the error
-    assert "Traceback" not in proc.stderr and len(proc.stderr.strip().splitlines()) == 1
+    errors = [ln for ln in proc.stderr.strip().splitlines() if "capped at the" not in ln]  # one-core machines
+    assert "Traceback" not in proc.stderr and len(errors) == 1
     summary = json.loads(proc.stdout)
     assert summary["files_analysed"] == 2 and summary["files_failed"] == 1
     rows = [json.loads(line) for line in (tmp_path / "out" / "run.jsonl").read_text().splitlines()]
