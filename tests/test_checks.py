@@ -95,3 +95,13 @@ def test_igse_overflow_is_refused():
     with pytest.raises(ValueError, match="iGSE loss is not finite"):
         igse(w, 1e308, 1.5, 2.5)
     assert math.isfinite(igse(w, 1.0, 1.5, 2.5))
+
+
+def test_json_output_refuses_a_non_finite_field_by_name(capsys):
+    from workbench.cli.main import emit_json
+
+    with pytest.raises(ValueError, match=r"result field results.loss_w_m3 is not finite \(inf\)"):
+        emit_json({"results": {"loss_w_m3": math.inf, "ok": 1.0}})
+    assert capsys.readouterr().out == ""
+    emit_json({"a": [1.0, None]})
+    assert json.loads(capsys.readouterr().out) == {"a": [1.0, None]}

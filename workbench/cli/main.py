@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import json
+import math
 import sys
 
 from workbench import __version__
@@ -52,8 +53,28 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _non_finite(value, where: str = ""):
+    """Path of the first NaN or infinity in a JSON payload, or None."""
+    if isinstance(value, float):
+        return None if math.isfinite(value) else (where or "value", value)
+    if isinstance(value, dict):
+        items = value.items()
+    elif isinstance(value, (list, tuple)):
+        items = enumerate(value)
+    else:
+        return None
+    for key, item in items:
+        found = _non_finite(item, f"{where}.{key}" if where else str(key))
+        if found:
+            return found
+    return None
+
+
 def emit_json(payload) -> None:
-    """Print one JSON document (SI units) on stdout."""
+    """Print one JSON document (SI units) on stdout; a NaN or infinity is refused, naming its field."""
+    found = _non_finite(payload)
+    if found:
+        raise ValueError(f"the result field {found[0]} is not finite ({found[1]}): an input is out of range")
     sys.stdout.write(json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n")
 
 
