@@ -35,7 +35,6 @@ import sys
 from pathlib import Path
 
 from workbench.analysis.batch import is_result_log, run_batch
-from workbench.fileio import write_text_atomic
 from workbench.cli.capture import (
     CAUTION,
     add_capture_options,
@@ -43,6 +42,7 @@ from workbench.cli.capture import (
     capture_settings,
     reader_options,
 )
+from workbench.fileio import write_text_atomic
 
 #: Columns of the CSV output, in order (SI units in the names).
 CSV_COLUMNS = (
