@@ -11,7 +11,10 @@ Prints, from one run:
   flux array (target: at most 5x);
 * the same for a noise-free two-level PWM flux of the same length (many minor
   loops, every segment carries flux gain: the slow path);
-* the time of one 1024-sample sine (target: well under a millisecond).
+* the time of one 1024-sample sine (target: well under a millisecond);
+* the classical eddy loss with skin effect of a triangle and of a 12,800-sample
+  PWM flux: building the harmonic spectrum once, then 400 frequencies at once
+  (what a frequency sweep asks of :func:`workbench.models.eddy_spectrum`).
 
 Ratios are printed, not judged: machines are noisy. ``--quick`` uses 1/10 of the
 sizes and finishes in a few seconds.
@@ -143,6 +146,16 @@ def main(argv=None) -> int:
                                max(50, 20 * args.repeat))
     print(f"1024-sample sine: iGSE with minor loops {1e3 * t_small:.3f} ms, "
           f"without {1e3 * t_small_plain:.3f} ms (target: well under 1 ms)")
+    freqs = np.geomspace(10.0, 1e6, 400)
+    for name, shape in (("triangle (2 corners)", waveforms.triangle(0.1, 1e3, 0.3)),
+                        ("PWM, 12,800 samples", waveforms.pwm(1.0, 50.0, 10_000.0, 0.8))):
+        def build(shape=shape):
+            fresh = waveforms.FluxWaveform(shape.t, shape.b, shape.period)  # no cached spectrum
+            return models.eddy_spectrum(fresh)
+        t_build, spec = best_of(build, max(5, args.repeat))
+        t_sweep, _ = best_of(lambda spec=spec: spec.classical(freqs, 4.5e-7, 0.35e-3, 2000.0), max(5, args.repeat))
+        print(f"classical eddy with skin effect, {name}: spectrum {1e3 * t_build:.2f} ms, "
+              f"400 frequencies {1e3 * t_sweep:.2f} ms")
     return 0
 
 
