@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from workbench.checks import finite_number, positive_number
 from workbench.jsonsafe import to_jsonable
 from workbench.models import thermal as heat
 
@@ -294,23 +295,11 @@ def make_cooling(*, r_th=None, surface_area=None, height=None, emissivity=None, 
 
 
 def _positive(value, name, unit):
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name} must be a number [{unit}]; got {value!r}") from None
-    if not (math.isfinite(x) and x > 0):
-        raise ValueError(f"{name} must be finite and positive [{unit}]; got {value!r}")
-    return x
+    return positive_number(value, name, unit=unit)
 
 
 def _finite(value, name, unit):
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name} must be a number [{unit}]; got {value!r}") from None
-    if not math.isfinite(x):
-        raise ValueError(f"{name} must be finite [{unit}]; got {value!r}")
-    return x
+    return finite_number(value, name, unit=unit)
 
 
 # ---------------------------------------------------------------------------

@@ -20,6 +20,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from workbench.checks import positive_number
+
 __all__ = ["flux_density", "volt_seconds"]
 
 #: Samples handled at a time when a straight line is taken off a long record.
@@ -27,13 +29,7 @@ CHUNK = 1 << 16
 
 
 def _positive(value, name: str) -> float:
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name} must be a number, got {value!r}") from None
-    if not np.isfinite(x) or x <= 0:
-        raise ValueError(f"{name} must be a finite positive number, got {x!r}")
-    return x
+    return positive_number(value, name)
 
 
 def volt_seconds(t, v, *, periodic: bool = False) -> np.ndarray:

@@ -42,6 +42,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from workbench.checks import positive_number
+
 __all__ = ["PeriodProducts", "measured_loss", "period_products"]
 
 #: Samples handled at a time (bounded temporaries on long records).
@@ -195,8 +197,7 @@ def measured_loss(t, v_sense, current, period: float, *, volume: float, turns: f
         tt = np.asarray(t, dtype=float).ravel()
         step = (tt[-1] - tt[0]) / (tt.size - 1)
     for name, value in (("volume", volume), ("turns", turns)):
-        if not (math.isfinite(value) and value > 0):
-            raise ValueError(f"{name} must be finite and positive, got {value!r}")
+        positive_number(value, name)
     ratio = 1.0 if sense_turns is None else float(turns) / float(sense_turns)
     r = float(winding_resistance)
     if not (math.isfinite(r) and r >= 0):

@@ -13,6 +13,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from workbench.checks import positive_number
+
 __all__ = ["BiasedSteinmetz", "bias_steinmetz", "dc_field_strength"]
 
 
@@ -87,8 +89,7 @@ def bias_steinmetz(k, alpha, beta, h_dc, bias) -> BiasedSteinmetz:
        pp. 953-963, 2012. doi:10.1109/TPEL.2011.2160971
     """
     for name, value in (("k", k), ("alpha", alpha), ("beta", beta)):
-        if not (isinstance(value, (int, float, np.floating)) and math.isfinite(value) and value > 0):
-            raise ValueError(f"{name} must be finite and positive; got {value!r}")
+        positive_number(value, name)
     if not isinstance(h_dc, (int, float, np.integer, np.floating)) or not math.isfinite(h_dc):
         raise ValueError(f"h_dc must be a finite number [A/m]; got {h_dc!r}")
     h = abs(float(h_dc))
@@ -134,12 +135,8 @@ def dc_field_strength(turns, current, path_length):
     .. [1] E. C. Snelling, "Soft Ferrites: Properties and Applications", 2nd ed.,
        Butterworths, 1988 (effective core parameters; from memory).
     """
-    n = float(turns)
-    le = float(path_length)
-    if not (math.isfinite(n) and n > 0):
-        raise ValueError(f"turns must be finite and positive; got {turns!r}")
-    if not (math.isfinite(le) and le > 0):
-        raise ValueError(f"path_length must be finite and positive [m]; got {path_length!r}")
+    n = positive_number(turns, "turns")
+    le = positive_number(path_length, "path_length", unit="m")
     i = np.asarray(current, dtype=float)
     if not np.all(np.isfinite(i)):
         raise ValueError(f"current must be finite [A]; got {current!r}")
