@@ -119,7 +119,7 @@ def test_callback_sees_every_point_once(steel):
 
     assert grid_sweep(steel, reduce=collect, chunk_points=5, **kw) is None
     assert (count == 1).all()
-    np.testing.assert_array_equal(seen, full.values)
+    np.testing.assert_allclose(seen, full.values, rtol=1e-13)  # chunking may change the last bit of a sum
 
 
 def test_large_grid_with_reducer_keeps_memory_bounded(steel):

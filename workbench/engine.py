@@ -61,8 +61,6 @@ DEFAULT_TEMPERATURE_CEILING_C = 400.0
 NEGLIGIBLE_SHARE = 0.01
 #: Fraction of the saturation flux density above which we warn.
 NEAR_SATURATION = 0.8
-#: Harmonics kept for the classical part with skin effect.
-N_HARMONICS = 256
 
 
 # ---------------------------------------------------------------------------
@@ -307,26 +305,10 @@ class _Relaxation:
 class _Classical:
     """Classical eddy part of one waveform as a function of frequency, resistivity and thickness."""
 
-    ref_freq: float
-    mean_sq_dbdt: float  # <(dB/dt)^2> at the reference frequency [T^2/s^2]
-    harmonic_numbers: np.ndarray
-    harmonic_amplitudes: np.ndarray  # [T]
+    spectrum: models.EddySpectrum  # harmonic shares of the shape (phase units), from models.eddy_spectrum
 
     def __call__(self, freq, resistivity, thickness, rel_permeability):
-        f = np.asarray(freq, dtype=float)
-        rho = np.asarray(resistivity, dtype=float)
-        d = np.asarray(thickness, dtype=float)
-        if rel_permeability is None:
-            return (d**2 / (12.0 * rho)) * self.mean_sq_dbdt * (f / self.ref_freq) ** 2
-        shape = np.broadcast(f, rho, d).shape
-        f, rho, d = (np.broadcast_to(a, shape)[..., None] for a in (f, rho, d))
-        out = np.zeros(shape)
-        step = 32  # harmonics per pass: memory stays at 32 x the output, whatever the grid
-        for i in range(0, self.harmonic_numbers.size, step):
-            n = self.harmonic_numbers[i:i + step]
-            a = self.harmonic_amplitudes[i:i + step]
-            out += np.sum(models.classical_eddy(f * (n / self.ref_freq), a, rho, d, rel_permeability), axis=-1)
-        return out
+        return np.asarray(self.spectrum.classical(freq, resistivity, thickness, rel_permeability), dtype=float)
 
 
 @dataclass(frozen=True)
@@ -440,13 +422,14 @@ def _relaxation_law(waveform: FluxWaveform, rx) -> _Relaxation | None:
 
 
 def _classical_law(waveform: FluxWaveform) -> _Classical:
-    mean_sq = float(np.sum(waveform.segment_increments**2 / waveform.segment_durations) / waveform.period)
-    spec = waveform.spectrum(N_HARMONICS, samples=4 * N_HARMONICS)
-    amp = spec.amplitude[1:]
-    n = np.arange(1, amp.size + 1, dtype=float)
-    keep = amp > 1e-9 * amp.max() if amp.size and amp.max() > 0 else np.zeros(amp.shape, bool)
-    # harmonic frequencies at the reference frequency: classical(f) uses n * f
-    return _Classical(float(waveform.freq), mean_sq, n[keep] * waveform.freq, amp[keep])
+    return _Classical(models.eddy_spectrum(waveform))
+
+
+def _sine_spectrum(b_peak: float) -> models.EddySpectrum:
+    """Eddy spectrum of an ideal sine: one harmonic holding all of <(dB/dtheta)^2> = 2 pi^2 B^2."""
+    share = 2 * math.pi**2 * b_peak**2
+    empty = np.zeros(0)
+    return models.EddySpectrum(share, np.array([1.0]), np.array([share]), empty, empty, 1, 0.0)
 
 
 def _exact_sine(laws: "LossLaws", spec: ShapeSpec, k: float, sep) -> "LossLaws":
@@ -460,7 +443,7 @@ def _exact_sine(laws: "LossLaws", spec: ShapeSpec, k: float, sep) -> "LossLaws":
     f, b = float(spec.freq), float(spec.b_peak)
     fields = dict(
         igse_ref=k * f**laws.alpha * b**laws.beta, minor_share=0.0, n_minor_loops=0, relaxation=None,
-        classical=_Classical(f, 2 * math.pi**2 * f**2 * b**2, np.array([f]), np.array([b])),
+        classical=_Classical(_sine_spectrum(b)),
     )
     if sep is not None:
         fields.update(hyst_ref=float(sep.k_hyst) * f * b ** float(sep.beta_hyst),
