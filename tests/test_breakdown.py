@@ -43,7 +43,11 @@ def test_library_has_en10106_grades_in_three_thicknesses():
 
 @pytest.mark.parametrize("name", EN10106_GRADES)
 def test_en10106_grade_loss_at_1p5_t_50_hz_is_within_the_standard_maximum(name):
-    # reference: EN 10106, maximum specific total loss at 1.5 T, 50 Hz by grade (see module docstring).
+    # What this checks, plainly: the library's steel data were *derived* from the EN 10106 grade
+    # maximum at 1.5 T, 50 Hz (their source lines set the loss there at 86-87 % of it), so this is
+    # not an independent validation of the data. It checks that the whole analysis path (shape,
+    # engine, W/kg) gives back the values the data were built for, and that the grade name, the
+    # sheet thickness and the maximum agree (EN 10106 designation, see module docstring).
     # Lower bound: common practice, no source: delivered sheet of a grade typically lies at 70-95 % of
     # its guaranteed maximum; 60 % is a generous floor for a "plausible fraction".
     limit, thickness = en10106_limit(name)
@@ -92,16 +96,14 @@ def test_high_resistivity_ferrite_says_classical_loss_is_negligible():
             assert any("negligible" in note for note in res.notes), res.notes
 
 
-def test_negligible_note_follows_the_classical_share():
-    # the note appears exactly when the classical part is below 1 % of the total
-    for name in NAMES:
-        mat = materials.get_material(name)
-        lo, _ = mat.steinmetz.freq_range
-        b = float(np.sqrt(np.prod(mat.steinmetz.b_range)))
-        res = breakdown(waveforms.sine(b, lo), mat)
-        reference = res.separation_total if res.separation_total is not None else res.total
-        noted = any("negligible" in note for note in res.notes)
-        assert noted == (res.classical < 0.01 * reference), name
+def test_silicon_steel_at_mains_frequency_has_a_sizeable_classical_part():
+    # common practice, no source: in 0.35-0.65 mm silicon steel at 50 Hz the classical eddy part
+    # is roughly a tenth to a quarter of the total loss, so it is never called negligible
+    for name in EN10106_GRADES:
+        res = breakdown(waveforms.sine(1.5, 50.0), materials.get_material(name))
+        share = res.classical / res.separation_total
+        assert 0.05 < share < 0.35, (name, share)
+        assert not any("negligible" in note for note in res.notes), name
 
 
 def test_ferrite_saturation_is_far_below_silicon_steel():
