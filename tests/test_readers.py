@@ -10,6 +10,7 @@ from __future__ import annotations
 import importlib.util
 import io
 import math
+import os
 import re
 import subprocess
 import sys
@@ -605,3 +606,310 @@ def test_npz_columns_and_time_column(tmp_path):
         read_capture(path, delimiter=",")
     with pytest.raises(CaptureError, match="no time array"):
         read_capture(path, columns={"v": "winding"})
+
+
+# --------------------------------------------------------------------------------------------
+# real export styles (issue 10): fixtures in tests/data/instrument_exports/, written by make_exports.py
+# from closed forms; every value below is recomputed from those forms, not by the reader
+# --------------------------------------------------------------------------------------------
+EXPORTS = DATA / "instrument_exports"
+
+
+def _load_exports():
+    spec = importlib.util.spec_from_file_location("make_exports", EXPORTS / "make_exports.py")
+    module = importlib.util.module_from_spec(spec)
+    assert spec.loader is not None
+    spec.loader.exec_module(module)
+    return module
+
+
+def test_export_fixtures_regenerate_byte_for_byte(tmp_path):
+    gen = _load_exports()
+    gen.write_all(tmp_path)
+    for path in tmp_path.iterdir():
+        assert path.read_bytes() == (EXPORTS / path.name).read_bytes(), path.name
+    assert "invented" in (EXPORTS / "README.md").read_text()
+
+
+def test_scope_export_semicolon_decimal_comma_preamble_units_row(parser):
+    gen = _load_exports()
+    cap = read_capture(EXPORTS / "scope_semicolon_decimal_comma.csv")
+    k = np.arange(gen.SCOPE_N)
+    # time from the preamble's "Sample Interval;4,0E-09": closed form t_k = k dt
+    np.testing.assert_allclose(cap.time, k * 4e-9, rtol=1e-15, atol=0)
+    # values written with 7 significant digits: half a unit in the last place
+    v = np.array([gen.scope_v(j) for j in k])
+    i = np.array([gen.scope_i(j) for j in k])
+    np.testing.assert_allclose(cap.channels["v"], v, rtol=5e-7, atol=5e-12)
+    np.testing.assert_allclose(cap.channels["i"], i, rtol=5e-7, atol=5e-12)
+    assert cap.columns == {"v": "CH1", "i": "CH2"}  # CH2 in ampere is a current
+    assert cap.meaning["i"] == "unit 'A' of generic name 'CH2'"
+    assert cap.metadata["Sample Interval"] == "4,0E-09"  # kept as written
+    assert cap.metadata["Firmware"] == "2,14"
+    assert cap.metadata["decimal"] == "," and cap.metadata["delimiter"] == "';'"
+    assert any("decimal comma" in n for n in cap.notes)
+    assert any("sample interval" in n for n in cap.notes)
+
+
+def test_simulator_export_probe_names_and_uneven_steps_kept_exactly(parser):
+    gen = _load_exports()
+    cap = read_capture(EXPORTS / "simulator_tab_uneven.txt")
+    written = np.array([float(f"{t:.15e}") for t in gen.sim_times()])
+    np.testing.assert_array_equal(cap.time, written)  # no resampling, bit for bit
+    np.testing.assert_array_equal(np.diff(cap.time), np.diff(written))
+    assert np.diff(written).min() < 2e-9 < 1.5e-8 < np.diff(written).max()  # truly uneven
+    v = np.array([float(f"{gen.sim_v(t):.9g}") for t in gen.sim_times()])
+    i = np.array([float(f"{gen.sim_i(t):.9g}") for t in gen.sim_times()])
+    np.testing.assert_array_equal(cap.channels["v"], v)
+    np.testing.assert_array_equal(cap.channels["i"], i)
+    assert cap.columns == {"time": "time", "v": "V(n003)", "i": "I(L1)"}
+    assert cap.meaning["v"] == "simulator name 'V(n003)'"
+    assert cap.units == {"time": "", "v": "", "i": ""}
+    assert cap.clipped_channels == ()  # an ideal square voltage is not clipping evidence here
+
+
+def test_logger_export_tab_iso_slash_units(parser):
+    gen = _load_exports()
+    cap = read_capture(EXPORTS / "logger_tab_iso_units.tsv")
+    k = np.arange(400)
+    vals = np.array([gen.log_values(j) for j in k])
+    np.testing.assert_allclose(cap.time, np.round(k / 1e4, 4), rtol=1e-15, atol=0)
+    np.testing.assert_allclose(cap.channels["v"], vals[:, 0], rtol=0, atol=5.1e-6)
+    np.testing.assert_allclose(cap.channels["i"], vals[:, 1], rtol=0, atol=5.1e-6)
+    np.testing.assert_allclose(cap.channels["b"], vals[:, 2] / 1e3, rtol=0, atol=5.1e-9)  # mT
+    assert cap.units["b"] == "mT"
+    assert cap.metadata["Sample rate"] == "10 kS/s"
+    assert cap.metadata["sample_interval_metadata"] == repr(1e-4)
+
+
+def test_whitespace_export_uneven_steps_in_us(parser):
+    gen = _load_exports()
+    cap = read_capture(EXPORTS / "whitespace_uneven_steps.dat")
+    t_us = np.array(gen.uneven_times_us())
+    np.testing.assert_allclose(cap.time, t_us / 1e6, rtol=4e-16, atol=0)
+    vs = np.array([gen.uneven_vs_mv(t) for t in t_us]) / 1e3
+    np.testing.assert_allclose(cap.channels["v_sense"], vs, rtol=0, atol=5.1e-10)
+    steps = np.diff(cap.time)
+    assert float(cap.metadata["time_step.min"]) == steps.min()
+    assert float(cap.metadata["time_step.max"]) == steps.max()
+    assert steps.max() / steps.min() > 2  # uneven, and kept so
+
+
+# --------------------------------------------------------------------------------------------
+# dialects: decimal commas on any length, options that override every guess
+# --------------------------------------------------------------------------------------------
+def _scope_text(n: int, sep: str = ";", header: str = "TIME;CH1;CH2\ns;V;A\n") -> str:
+    t, v, i = np.arange(n) * 4e-9, 12 * np.sin(np.arange(n) / 50), 0.5 * np.cos(np.arange(n) / 50)
+    pre = "".join(f"Note {k};invented bench note {k}\n" for k in range(13))
+    pre += "Sample Interval;4,0E-09\nRecord Length;%d\n" % n
+    rows = "".join(f"{a:.6E}{sep}{b:.5f}{sep}{c:.6f}\n".replace(".", ",") for a, b, c in zip(t, v, i))
+    return pre + header + rows
+
+
+@pytest.mark.parametrize("n", [50, 20_000])
+def test_decimal_comma_detected_on_any_length(tmp_path, n, parser):
+    # 15 preamble lines, TIME;CH1;CH2 over s;V;A; the old reader gave "header too large"
+    # beyond 10 000 rows and read CH2 as a sense voltage although its unit is ampere
+    path = tmp_path / "scope.csv"
+    path.write_text(_scope_text(n))
+    cap = read_capture(path)
+    k = np.arange(n)
+    np.testing.assert_allclose(cap.time, k * 4e-9, rtol=2e-6, atol=0)  # 7 digits written
+    np.testing.assert_allclose(cap.channels["v"], 12 * np.sin(k / 50), rtol=0, atol=5.1e-6)
+    np.testing.assert_allclose(cap.channels["i"], 0.5 * np.cos(k / 50), rtol=0, atol=5.1e-7)
+    assert set(cap.channels) == {"v", "i"}
+    assert cap.metadata["Sample Interval"] == "4,0E-09"
+    assert cap.metadata["sample_interval_metadata"] == repr(4e-9)
+
+
+@pytest.mark.parametrize("sep", ["\t", "  "])
+def test_decimal_comma_with_tab_or_whitespace(tmp_path, sep, parser):
+    path = tmp_path / "dc.txt"
+    path.write_text(f"t (us){sep}v (V)\n" + "".join(f"{k},5{sep}-{k},25\n" for k in range(5)))
+    cap = read_capture(path)
+    np.testing.assert_allclose(cap.time, (np.arange(5) + 0.5) * 1e-6, rtol=1e-15)
+    np.testing.assert_array_equal(cap.channels["v"], -(np.arange(5) + 0.25))
+
+
+def test_decimal_and_delimiter_options(tmp_path, parser):
+    path = tmp_path / "scope.csv"
+    path.write_text(_scope_text(30))
+    same = read_capture(path, delimiter="semicolon", decimal="comma")
+    np.testing.assert_array_equal(same.channels["v"], read_capture(path).channels["v"])
+    assert not any("decimal comma" in n for n in same.notes)  # stated, not guessed
+    with pytest.raises(CaptureError, match=r"decimal commas .* pass decimal=','"):
+        read_capture(path, decimal=".")
+    point = tmp_path / "point.csv"
+    point.write_text("time;v\n0.5;1.5\n1.5;2.5\n2.5;3.5\n")
+    with pytest.raises(CaptureError, match="no numeric data rows"):
+        read_capture(point, decimal=",")
+    for kwargs, fragment in [({"decimal": ";"}, "decimal=';'"),
+                             ({"delimiter": ",", "decimal": ","}, "cannot both be a comma"),
+                             ({"decimal": 1}, "decimal=1")]:
+        with pytest.raises(CaptureError) as info:
+            read_capture(path, **kwargs)
+        assert fragment in str(info.value)
+
+
+def test_late_decimal_comma_row_is_named(tmp_path, parser):
+    rows = "".join(f"{k};{k + 1}\n" for k in range(300)) + "300;1,5\n"
+    path = tmp_path / "late.csv"
+    path.write_text("time;v\n" + rows)
+    with pytest.raises(CaptureError, match=r"row 302, column 2 \('v'\): text '1,5' .*decimal=','"):
+        read_capture(path)
+
+
+def test_sample_interval_with_unit_field_and_decimal_comma(parser):
+    text = "Sample Interval;2,5;us\nCH1;CH2\nV;V\n1,0;2,0\n1,5;2,5\n2,0;3,0\n"
+    cap = read_capture(io.StringIO(text))
+    np.testing.assert_allclose(cap.time, [0.0, 2.5e-6, 5e-6], rtol=1e-15)
+    assert cap.columns == {"v": "CH1", "v_sense": "CH2"}
+    assert any("v_sense" in n and "CH2" in n for n in cap.notes)  # the guess is stated
+
+
+# --------------------------------------------------------------------------------------------
+# channel meaning: names, units, simulator probes, overrides
+# --------------------------------------------------------------------------------------------
+@pytest.mark.parametrize(
+    ("header", "expected"),
+    [
+        ("X,CH1,CH2,CH3\nSecond,Volt,Ampere,mT\n", {"v": 1.0, "i": 2.0, "b": 3e-3}),
+        ("Time [s],CH1 [V],CH2 [A],CH3 [Wb]\n", {"v": 1.0, "i": 2.0, "flux": 3.0}),
+        ("t/s,Ch 1/mV,Channel 2/mA,C3/T\n", {"v": 1e-3, "i": 2e-3, "b": 3.0}),
+        (",CH1,CH2,CH3\ns,V,mV,A\n", {"v": 1.0, "v_sense": 2e-3, "i": 3.0}),
+        ("time,V(out),I(L1),Ix(U1:1)\n", {"v": 1.0, "i": 2.0}),
+        ("time,V(mV),I(A),B\n", {"v": 1e-3, "i": 2.0, "b": 3.0}),
+    ],
+)
+def test_channel_meaning_from_units_and_names(header, expected, parser):
+    body = "".join(f"{k}e-6,1,2,3\n" for k in range(4))
+    if "Ix(" in header:
+        with pytest.raises(CaptureError, match="both look like channel 'i'"):
+            read_capture(io.StringIO(header + body))
+        cap = read_capture(io.StringIO(header + body), channels={"Ix(U1:1)": "ignore"})
+    else:
+        cap = read_capture(io.StringIO(header + body))
+    assert set(cap.channels) == set(expected)
+    for key, value in expected.items():
+        np.testing.assert_allclose(cap.channels[key], value, rtol=4e-16)
+    np.testing.assert_allclose(cap.time, np.arange(4) * 1e-6, rtol=4e-16)
+
+
+def test_simulator_names_are_not_units(parser):
+    # the old reader refused this file with "unknown unit 'n003'"
+    text = "time V(n003) V(n005) I(L1)\n" + "".join(f"{k}e-9 {k} {2 * k} 0.5\n" for k in range(4))
+    cap = read_capture(io.StringIO(text))
+    assert cap.columns == {"time": "time", "v": "V(n003)", "v_sense": "V(n005)", "i": "I(L1)"}
+    assert any("V(n005)" in n and "v_sense" in n for n in cap.notes)
+    three = "time V(a) V(b) V(c)\n" + "0 1 2 3\n1e-9 1 2 3\n2e-9 1 2 3\n"
+    with pytest.raises(CaptureError, match="3 voltage columns"):
+        read_capture(io.StringIO(three))
+    cap = read_capture(io.StringIO(three), channels={"V(a)": "ignore", "V(c)": "voltage"})
+    assert cap.columns == {"time": "time", "v": "V(c)", "v_sense": "V(b)"}
+
+
+def test_channels_override_every_guess(parser):
+    text = "TIME;CH1;CH2\ns;V;V\n0;1;2\n1e-6;1;2\n2e-6;1;2\n"
+    guessed = read_capture(io.StringIO(text))
+    assert set(guessed.channels) == {"v", "v_sense"}
+    # a current shunt read in volts: the user says what CH2 is
+    cap = read_capture(io.StringIO(text), channels={"CH2": "current", 1: "sense voltage"},
+                       units={"i": "A"})
+    assert cap.columns == {"time": "TIME", "v_sense": "CH1", "i": "CH2"}
+    assert cap.meaning["i"] == "argument channels['CH2']"
+    counter = "TIME;CH1;CH2\ns;V;V\n0;1;2\n1e-6;2;2\n2e-6;3;2\n"
+    cap = read_capture(io.StringIO(counter), channels={"TIME": "ignore", "CH1": "time"},
+                       time_unit="ms")
+    np.testing.assert_array_equal(cap.time, [1e-3, 2e-3, 3e-3])  # ms -> s, SI brochure
+    assert cap.columns == {"time": "CH1", "v": "CH2"}
+    for bad, fragment in [({"CH2": "voltage please"}, "is not a meaning"),
+                          ({"CH9": "current"}, "matches no header name"),
+                          ("CH2=i", "must be a mapping")]:
+        with pytest.raises(CaptureError) as info:
+            read_capture(io.StringIO(text), channels=bad)
+        assert fragment in str(info.value)
+
+
+def test_legacy_generic_names_without_units_are_stated(parser):
+    text = "Time,CH1,CH2\n0,1,2\n1e-6,1,2\n2e-6,1,2\n"
+    cap = read_capture(io.StringIO(text))
+    assert cap.columns == {"time": "Time", "v": "CH1", "v_sense": "CH2"}
+    assert sum("by position" in n for n in cap.notes) == 2
+    assert any("no unit given" in n for n in cap.notes)
+
+
+# --------------------------------------------------------------------------------------------
+# hostile inputs (issue 11): not regular files, long text, huge declared sizes
+# --------------------------------------------------------------------------------------------
+def test_only_regular_files_are_read(tmp_path):
+    fifo = tmp_path / "capture.csv"
+    os.mkfifo(fifo)  # no writer: an ordinary open would block forever
+    cases = [(fifo, "is a FIFO"), (tmp_path, "is a directory"),
+             (Path("/dev/zero"), "character device"), (tmp_path / "absent.csv", "no such file")]
+    for path, fragment in cases:
+        for reader in (read_capture, read_csv_capture, read_npz_capture):
+            with pytest.raises(CaptureError) as info:
+                reader(path)
+            assert str(info.value) == f"{path}: " + str(info.value).split(": ", 1)[1]
+            assert fragment in str(info.value)
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root reads files of mode 000")
+def test_unreadable_file_is_named(tmp_path):
+    path = tmp_path / "locked.csv"
+    path.write_text("time,v\n0,1\n1,2\n2,3\n")
+    path.chmod(0)
+    with pytest.raises(CaptureError, match="permission denied"):
+        read_capture(path)
+
+
+def test_wide_header_and_long_cell_give_short_messages(tmp_path):
+    generator = _load_generator()
+    path = tmp_path / "wide.csv"
+    path.write_bytes(generator.wide_header_bytes(10_000))
+    with pytest.raises(CaptureError) as info:
+        read_capture(path)
+    assert len(str(info.value)) < 300 and "10000 in all" in str(info.value)
+    long_cell = tmp_path / "long_cell.csv"
+    long_cell.write_text("time,v\n0,1\n1e-6," + "7" * 200_000 + "x\n2e-6,3\n")
+    with pytest.raises(CaptureError) as info:
+        read_capture(long_cell)
+    message = str(info.value)
+    assert len(message) < 300 and "row 3, column 2" in message and "200001 characters" in message
+
+
+def test_npz_unused_member_is_never_decompressed(tmp_path):
+    import tracemalloc
+
+    generator = _load_generator()
+    path = tmp_path / "bomb.npz"
+    path.write_bytes(generator.zip_bomb_npz_bytes(unused_mib=256))
+    assert path.stat().st_size < 2_000_000
+    tracemalloc.start()
+    try:
+        cap = read_capture(path)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert cap.n_samples == 1000 and set(cap.channels) == {"v"}
+    assert peak < 20 * 2**20, peak  # the 256 MiB member would need 256 MiB
+
+
+def test_npz_text_member_beside_arrays_is_ignored(tmp_path):
+    generator = _load_generator()
+    t, v, _ = _invented_flyback()
+    path = tmp_path / "with_text.npz"
+    path.write_bytes(generator._zip({"t.npy": generator._npy(t), "v.npy": generator._npy(v),
+                                     "readme.txt": b"invented\n"}))
+    cap = read_capture(path)
+    np.testing.assert_array_equal(cap.channels["v"], v)
+
+
+def test_npz_huge_values_and_channels_option(tmp_path):
+    t, v, _ = _invented_flyback()
+    path = tmp_path / "huge.npz"
+    np.savez(path, t=t, winding=np.where(np.arange(N) == 7, -1e308, v))
+    with pytest.raises(CaptureError, match=r"array 'winding', sample 7 .*-1e\+308 V"):
+        read_capture(path, channels={"winding": "voltage"})
+    with pytest.raises(CaptureError, match="decimal= does not apply"):
+        read_capture(path, decimal=",")

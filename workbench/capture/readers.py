@@ -92,8 +92,10 @@ _RATE_KEYS: Final = frozenset(
      "samplerate"]
 )
 _NUM_RE: Final = {
-    ".": re.compile(r"^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?$", re.ASCII),
-    ",": re.compile(r"^[+-]?(?:\d+,?\d*|,\d+)(?:[eE][+-]?\d+)?$", re.ASCII),
+    # one way to match each string (no nested optional digit runs): linear time on a cell
+    # of any length, where "\d+\.?\d*" backtracks quadratically on a long run of digits
+    ".": re.compile(r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$", re.ASCII),
+    ",": re.compile(r"^[+-]?(?:\d+(?:,\d*)?|,\d+)(?:[eE][+-]?\d+)?$", re.ASCII),
 }
 _NONFINITE_RE: Final = re.compile(r"^[+-]?(?:nan|inf|infinity)$", re.IGNORECASE)
 _DECIMAL_COMMA_RE: Final = re.compile(r"^[+-]?\d*,\d+(?:[eE][+-]?\d+)?$", re.ASCII)
@@ -634,6 +636,9 @@ def _sample_interval(label: str, head: _Head) -> tuple[float, str] | None:
         if norm not in _INTERVAL_KEYS and norm not in _RATE_KEYS:
             continue
         parts = head.meta_fields.get(key, [value])
+        if len(value) > 200:
+            raise CaptureError(f"{label}: metadata {key!r} = {shorten(value)} is not a sample "
+                               "interval")
         text = _number_text(parts[0], head.decimal) if parts else ""
         if len(parts) == 2 and _meaning.looks_like_unit(parts[1]):
             text = f"{text} {_meaning.normalise_unit(parts[1])}"
