@@ -39,3 +39,22 @@ def test_given_bias_overrides_the_capture_own():
     r = analyse_file(BUCK, turns=TURNS, area=AREA, path_length=PATH_LENGTH, material="mnzn-power-ferrite",
                      temperature=60, h_dc=10.0)
     assert r.h_dc == 10.0
+
+
+def test_folder_and_capture_commands_use_the_given_bias(tmp_path, capsys):
+    import json
+    import shutil
+
+    from workbench.cli.main import main
+
+    folder = tmp_path / "bench"
+    folder.mkdir()
+    shutil.copy(BUCK, folder / BUCK.name)
+    geo = ["--turns", str(TURNS), "--area", "30mm2", "--material", "mnzn-power-ferrite", "--temperature", "60",
+           "--h-dc", "10"]
+    assert main(["capture", str(folder / BUCK.name), *geo, "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["h_dc_a_m"] == 10.0
+    assert main(["folder", str(folder), *geo, "--out", str(tmp_path / "run")]) == 0
+    capsys.readouterr()
+    row = json.loads((tmp_path / "run.jsonl").read_text().splitlines()[0])
+    assert row["h_dc_a_m"] == 10.0

@@ -30,7 +30,6 @@ import argparse
 import json
 import math
 import os
-import re
 import sys
 from pathlib import Path
 
@@ -42,6 +41,7 @@ from workbench.cli.capture import (
     capture_settings,
     reader_options,
 )
+from workbench.cli.main import cli_wording
 from workbench.fileio import write_text_atomic
 
 #: Columns of the CSV output, in order (SI units in the names).
@@ -69,6 +69,7 @@ def settings_payload(args) -> dict:
     quantity(args.temperature, "degC", "--temperature", positive=False)
     quantity(args.thickness, "m", "--thickness")
     quantity(args.resistivity, "ohm m", "--resistivity")
+    quantity(args.h_dc, "A/m", "--h-dc", positive=False)
     return {
         "geometry": capture_settings(args),
         "reader": reader_options(args),
@@ -78,21 +79,8 @@ def settings_payload(args) -> dict:
         "thickness": args.thickness,
         "resistivity": args.resistivity,
         "skin_effect": not args.no_skin,
+        "h_dc": args.h_dc,
     }
-
-
-#: API keyword -> command-line option, for messages of the library shown by this command
-_CLI_WORDS = {
-    "time_column": "--time-column", "columns": "--column CHANNEL=COLUMN", "channels": "--column CHANNEL=COLUMN",
-    "delimiter": "--delimiter", "decimal": "--decimal", "time_unit": "--time-unit", "units": "--unit CHANNEL=UNIT",
-    "sense_turns": "--sense-turns", "path_length": "--path-length", "winding_resistance": "--winding-resistance",
-}
-_API_WORD_RE = re.compile(r"\b(?:pass |give it with |argument |the keyword )?(" + "|".join(_CLI_WORDS) + r")=(?:'[^']*'|\S*)?")
-
-
-def cli_wording(message: str) -> str:
-    """A library message in command-line words: ``pass time_column=`` -> ``use --time-column``."""
-    return _API_WORD_RE.sub(lambda m: "use " + _CLI_WORDS[m.group(1)], message)
 
 
 def analyse_one(path: str, settings: dict, key: str, *, data: bytes | None = None) -> dict:
@@ -120,7 +108,8 @@ def analyse_one(path: str, settings: dict, key: str, *, data: bytes | None = Non
             temperature=quantity(settings["temperature"], "degC", "--temperature", positive=False),
             thickness=quantity(settings["thickness"], "m", "--thickness"),
             resistivity=quantity(settings["resistivity"], "ohm m", "--resistivity"),
-            skin_effect=settings["skin_effect"], **settings["geometry"],
+            skin_effect=settings["skin_effect"],
+            h_dc=quantity(settings.get("h_dc"), "A/m", "--h-dc", positive=False), **settings["geometry"],
         )
     except (ValueError, OSError) as exc:
         text = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__

@@ -11,6 +11,7 @@ import argparse
 import importlib
 import json
 import math
+import re
 import sys
 
 from workbench import __version__
@@ -27,6 +28,20 @@ SUBCOMMAND_MODULES = (
     "workbench.cli.fit",
     "workbench.cli.thermal",
 )
+
+#: API keyword -> command-line option, for messages of the library shown by a command
+_CLI_WORDS = {
+    "time_column": "--time-column", "columns": "--column CHANNEL=COLUMN", "channels": "--column CHANNEL=COLUMN",
+    "delimiter": "--delimiter", "decimal": "--decimal", "time_unit": "--time-unit", "units": "--unit CHANNEL=UNIT",
+    "sense_turns": "--sense-turns", "path_length": "--path-length", "winding_resistance": "--winding-resistance",
+}
+_API_WORD_RE = re.compile(r"\b(?:pass |give it with |argument |the keyword )?(" + "|".join(_CLI_WORDS) + r")=(?:'[^']*'|\S*)?")
+
+
+def cli_wording(message: str) -> str:
+    """A library message in command-line words: ``pass time_column=`` -> ``use --time-column``."""
+    return _API_WORD_RE.sub(lambda m: "use " + _CLI_WORDS[m.group(1)], message)
+
 
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2
@@ -98,7 +113,7 @@ def main(argv=None) -> int:
         message = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         if isinstance(exc, OSError) and getattr(exc, "filename", None) and str(exc.filename) not in message:
             message = f"{exc.filename}: {message}"
-        sys.stderr.write(f"workbench {args.command}: error: {message}\n")
+        sys.stderr.write(f"workbench {args.command}: error: {cli_wording(message)}\n")
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         sys.stderr.write("interrupted\n")
