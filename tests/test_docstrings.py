@@ -23,9 +23,17 @@ CORE_MODULES = [
     "workbench.analysis.breakdown",
     "workbench.analysis.sweep",
     "workbench.analysis.shapes",
+    "workbench.analysis.compare",
+    "workbench.analysis.thermal",
     "workbench.materials",
+    "workbench.engine",
+    "workbench.shapes",
+    "workbench.models.bias",
+    "workbench.models.thermal",
+    "workbench.models.batch",
 ]
-MODEL_MODULES = {"workbench.models.loops", "workbench.models.steinmetz", "workbench.models.separation"}
+MODEL_MODULES = {"workbench.models.loops", "workbench.models.steinmetz", "workbench.models.separation",
+                 "workbench.models.bias", "workbench.models.thermal"}
 
 SECTION = re.compile(r"^(?P<title>[A-Z][A-Za-z ]+)\n-{3,}\s*$", re.M)
 

@@ -187,7 +187,13 @@ class MaterialComparison:
                 f"{self.freq.size} frequencies: {names}; {len(self.warnings)} warning(s))")
 
     def curve(self, name: str) -> MaterialCurve:
-        """The curve of one material by name."""
+        """The curve of one material by name.
+
+        Parameters
+        ----------
+        name : str
+            Material name.
+        """
         for c in self.curves:
             if c.material == name:
                 return c
@@ -195,7 +201,13 @@ class MaterialComparison:
 
     def peak_fb(self, name: str) -> tuple[float, float] | None:
         """(frequency [Hz], f*B_peak [Hz T]) where one material's f*B_peak peaks inside its
-        fitted ranges, or None when no point is valid."""
+        fitted ranges, or None when no point is valid.
+
+        Parameters
+        ----------
+        name : str
+            Material name.
+        """
         c = self.curve(name)
         if not np.any(c.fb_valid):
             return None
@@ -204,8 +216,16 @@ class MaterialComparison:
 
     def best_at(self, freq: float, *, by: str = "fb") -> str | None:
         """Name of the material with the largest ``fb`` (``by="fb"``) or the lowest loss
-        (``by="loss"``) at the sample nearest ``freq`` [Hz], among points inside the fitted
-        ranges; None if no material is valid there."""
+        (``by="loss"``) at the sample nearest ``freq``, among points inside the fitted
+        ranges; None if no material is valid there.
+
+        Parameters
+        ----------
+        freq : float
+            Frequency [Hz].
+        by : {"fb", "loss"}
+            What "best" means.
+        """
         if by not in ("fb", "loss"):
             raise ValueError(f"by must be 'fb' or 'loss', got {by!r}")
         i = int(np.argmin(np.abs(np.log(self.freq) - np.log(_positive_scalar(freq, "freq")))))
