@@ -130,6 +130,7 @@ def test_unexportable_value_is_named():
     (1e5, "T/s", 3, "100 kT/s"),
     (25.0, "degC", 3, "25.0 °C"),
     (None, "W", 3, "– W"),
+    (3.5e-4, "m", 3, "350 µm"),
     (float("nan"), "Hz", 3, "– Hz"),
 ])
 def test_engineering_notation(value, unit, digits, text):
@@ -138,11 +139,22 @@ def test_engineering_notation(value, unit, digits, text):
     assert eng(value, unit, digits) == text
 
 
+def test_forced_prefix():
+    from workbench.report.numbers import eng
+
+    assert eng(3.5e-4, "m", 3, prefix="m") == "0.350 mm"
+    with pytest.raises(ValueError, match="prefix must be one of"):
+        eng(1.0, "m", prefix="x")
+
+
 def test_a_column_shares_one_prefix():
     from workbench.report.numbers import eng_column
 
     unit, texts = eng_column([1.2e6, 3.4e5, None], "W/m3", 3)
-    assert unit == "MW/m³" and texts == ["1.20", "0.340", "–"]
+    assert unit == "kW/m³" and texts == ["1200", "340", "–"]
+    # a column over decades takes the prefix of its geometric mean (here 1 kW/m3)
+    unit, texts = eng_column([10.0, 1e5], "W/m3", 3)
+    assert unit == "kW/m³" and texts == ["0.0100", "100"]
 
 
 def test_tick_prefixes_never_mix_milli_and_mega():

@@ -143,7 +143,7 @@ def _pick(x: float, scales, digits: int) -> tuple[float, str]:
     return chosen
 
 
-def eng_parts(value, unit: str = "", digits: int = 3) -> tuple[str, str]:
+def eng_parts(value, unit: str = "", digits: int = 3, *, prefix: str | None = None) -> tuple[str, str]:
     """A value as (number, unit) texts in engineering notation.
 
     Parameters
@@ -154,6 +154,8 @@ def eng_parts(value, unit: str = "", digits: int = 3) -> tuple[str, str]:
         SI unit (``"Hz"``, ``"W/m3"``, ``"m3"``, ``""`` for a plain number).
     digits : int
         Significant figures (default 3).
+    prefix : str, optional
+        Force this prefix (``"m"`` shows a lamination as ``0.350 mm``, matching a control in mm).
 
     Returns
     -------
@@ -167,11 +169,17 @@ def eng_parts(value, unit: str = "", digits: int = 3) -> tuple[str, str]:
     if x is None:
         base = next((label for factor, label in scales if factor == 1.0), scales[-1][1])
         return MISSING, base
-    factor, label = _pick(x, scales, digits)
+    if prefix is not None:
+        exp = {v: k for k, v in _LETTER.items()}.get(prefix.replace("u", "µ"))
+        if exp is None:
+            raise ValueError(f"prefix must be one of {', '.join(repr(v) for v in _LETTER.values())}, got {prefix!r}")
+        factor, label = 10.0 ** exp, prefix.replace("u", "µ") + unit_label(unit)
+    else:
+        factor, label = _pick(x, scales, digits)
     return _mantissa(x / factor, digits), label
 
 
-def eng(value, unit: str = "", digits: int = 3) -> str:
+def eng(value, unit: str = "", digits: int = 3, *, prefix: str | None = None) -> str:
     """A value with its unit in engineering notation.
 
     Parameters
@@ -182,6 +190,8 @@ def eng(value, unit: str = "", digits: int = 3) -> str:
         SI unit, e.g. ``"Hz"``, ``"T"``, ``"W/m3"``, ``"m3"``; ``""`` for a plain number.
     digits : int
         Significant figures (default 3).
+    prefix : str, optional
+        Force this SI prefix instead of choosing one.
 
     Returns
     -------
@@ -194,7 +204,7 @@ def eng(value, unit: str = "", digits: int = 3) -> str:
     The prefix is the largest allowed for the unit that leaves a mantissa of at least 1
     after rounding to ``digits`` figures (999.7 Hz with 3 figures is ``1.00 kHz``).
     """
-    number, label = eng_parts(value, unit, digits)
+    number, label = eng_parts(value, unit, digits, prefix=prefix)
     return f"{number} {label}" if label else number
 
 
@@ -214,16 +224,18 @@ def eng_column(values: Iterable, unit: str = "", digits: int = 3) -> tuple[str, 
     -------
     (str, list of str)
         The shown unit for the column heading (e.g. ``"kW/m³"``) and one text per value
-        (``"–"`` for missing ones). The prefix is the one :func:`eng` picks for the largest
-        magnitude in the column, so smaller values read as ``"0.500"`` rather than switching unit.
+        (``"–"`` for missing ones). The prefix is the one :func:`eng` picks for the geometric
+        mean of the magnitudes, so a column spanning decades reads ``6.75 ... 2700`` in one unit
+        rather than switching unit from row to row.
     """
     if not isinstance(digits, int) or digits < 1:
         raise ValueError(f"digits must be a positive integer, got {digits!r}")
     xs = [_finite(v) for v in values]
     scales = _scales(unit)
-    finite = [abs(x) for x in xs if x is not None]
-    if finite and max(finite) > 0:
-        factor, label = _pick(max(finite), scales, digits)
+    finite = [abs(x) for x in xs if x is not None and x != 0.0]
+    if finite:
+        typical = math.exp(sum(math.log(x) for x in finite) / len(finite))
+        factor, label = _pick(typical, scales, digits)
     else:
         factor, label = next((s for s in scales if s[0] == 1.0), scales[-1])
     return label, [MISSING if x is None else _mantissa(x / factor, digits) for x in xs]

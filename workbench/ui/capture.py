@@ -143,6 +143,8 @@ class CapturePanel(PanelBase):
             self.export_bar.widget,
             caution_widget(),
         ])
+        self.widget.add_class("fluxheat-panel")
+        self.widget.add_class(f"fluxheat-panel-{self.kind}")
 
     # -- figures -------------------------------------------------------------------------
     def _build_figures(self):

@@ -93,8 +93,8 @@ class ComparisonPanel(PanelBase):
         c.f_max = QuantityText(f_max, unit="Hz", name="highest frequency", description="to f [Hz]")
         c.loss_axis = widgets.Dropdown(options=[("per volume, W/m³", "W/m3"), ("per mass, W/kg", "W/kg")],
                                        value="W/m3", description="loss axis", **_WIDE)
-        c.volume = QuantityText(volume, unit="m3", name="core volume", description="core volume V_e [e.g. 12 cm3]",
-                                placeholder="optional")
+        c.volume = QuantityText(volume, unit="m3", name="core volume", description="core volume V_e",
+                                placeholder="optional, e.g. 12 cm3")
         for box in (c.loss_density, c.design_freq, c.f_min, c.f_max, c.volume):
             box.style = {"description_width": "230px"}
             box.layout = widgets.Layout(width="400px")
@@ -126,6 +126,8 @@ class ComparisonPanel(PanelBase):
             self.export_bar.widget,
             caution_widget(),
         ])
+        self.widget.add_class("fluxheat-panel")
+        self.widget.add_class(f"fluxheat-panel-{self.kind}")
 
     def _build_figures(self):
         self.loss_figure = fig = new_figure(

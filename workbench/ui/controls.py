@@ -135,8 +135,9 @@ class LogValue(widgets.HBox):
     Notes
     -----
     The browser snaps a value set from code to the slider's grid and sends the snapped
-    value back; a slider report within half a step of ``value`` is that echo and is
-    ignored, so a typed 0.2 stays 0.2 (not 0.1995).
+    value back, sometimes late (after the kernel has set the next value). A slider report
+    within half a step of any value the kernel placed on the slider since the last real move
+    is such an echo and is ignored, so a typed 0.2 stays 0.2 (not 0.1984).
     """
 
     value = traitlets.Float()
@@ -157,6 +158,7 @@ class LogValue(widgets.HBox):
                                  layout=widgets.Layout(width="100px"), tooltip="type an exact value")
         super().__init__([self.slider, self.text])
         self.set_trait("value", float(value))
+        self._placed = [float(value)]  # values put on the slider from the kernel, whose echoes may still come
         self.slider.observe(self._slid, names="value")
         self.text.observe(self._typed, names="value")
         self.observe(self._set, names="value")
@@ -183,6 +185,7 @@ class LogValue(widgets.HBox):
             self.slider.min = math.floor(lv)
         if lv > self.slider.max:
             self.slider.max = math.ceil(lv)
+        self._placed = [*self._placed[-15:], float(v)]
         self.slider.value = v
 
     def _set(self, change):  # value set from code
@@ -200,9 +203,14 @@ class LogValue(widgets.HBox):
         if self._syncing:
             return
         new = float(change["new"])
-        if self.value > 0 and abs(math.log10(new) - math.log10(self.value)) <= 0.5 * LOG_STEP * 1.001:
-            return  # the browser's echo of a value set from code or typed
+        if new <= 0:
+            return
+        half = 0.5 * LOG_STEP * 1.001
+        for placed in self._placed:
+            if abs(math.log10(new) - math.log10(placed)) <= half:
+                return  # the browser's echo of a value set from code or typed (possibly a late one)
         shown = float(self._show(new))
+        self._placed = []  # a real move: earlier echoes no longer matter
         self._syncing = True
         try:
             self.text.value = self._show(shown)

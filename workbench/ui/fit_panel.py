@@ -442,6 +442,8 @@ class FitPanel(PanelBase):
             self.export_bar.widget,
             caution_widget(),
         ])
+        self.widget.add_class("fluxheat-panel")
+        self.widget.add_class(f"fluxheat-panel-{self.kind}")
         self._update()
 
     # -- figures -------------------------------------------------------------------------
@@ -557,7 +559,8 @@ class FitPanel(PanelBase):
         for span, sign in zip(self.tolerance_spans, (1, -1)):
             span.location = sign * 100.0 * s.tolerance
             span.visible = s.model == "steinmetz"
-        self.summary_html.value = f'<div style="font-size:1.05em"><b>{html.escape(view.summary)}</b></div>'
+        self.summary_html.value = (f'<div class="fluxheat-fit-summary" style="font-size:1.05em">'
+                                   f'<b>{html.escape(view.summary)}</b></div>')
         rows = "".join(f'<tr><td style="padding:1px 10px">{html.escape(n)}</td><td style="padding:1px 10px">'
                        f'{html.escape(v)}</td><td style="padding:1px 10px;color:#444">{html.escape(ci)}</td></tr>'
                        for n, v, ci in view.parameters)

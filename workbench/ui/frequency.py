@@ -129,8 +129,8 @@ class FrequencyPanel(PanelBase):
                                      placeholder="material's reference", **_TEXT)
         c.loss_axis = widgets.Dropdown(options=[("per volume, W/m³", "W/m3"), ("per mass, W/kg", "W/kg")],
                                        value="W/m3", description="loss axis", **_WIDE)
-        c.volume = QuantityText(volume, unit="m3", name="core volume", description="core volume V_e [e.g. 12 cm3]",
-                                placeholder="optional", **_TEXT)
+        c.volume = QuantityText(volume, unit="m3", name="core volume", description="core volume V_e",
+                                placeholder="optional, e.g. 12 cm3", **_TEXT)
         c.operating_freqs = widgets.Text(value=operating_freqs, description="operating points [Hz]",
                                          placeholder="e.g. 50, 400, 20k", continuous_update=False, **_TEXT)
         c.compare_thickness_mm = QuantityText("", unit="", name="second thickness",
@@ -178,6 +178,8 @@ class FrequencyPanel(PanelBase):
             self.export_bar.widget,
             caution_widget(),
         ])
+        self.widget.add_class("fluxheat-panel")
+        self.widget.add_class(f"fluxheat-panel-{self.kind}")
 
     # -- figures -------------------------------------------------------------------------
     def _build_figures(self):

@@ -414,8 +414,9 @@ def frequency_view(settings: FrequencySettings) -> FrequencyView:
         cx2 = sw2.crossover
         first = eng(cx.freq, "Hz", 4) if cx.freq is not None else "none in range"
         second = eng(cx2.freq, "Hz", 4) if cx2.freq is not None else "none in range"
-        text = (f"Second lamination {eng(d2, 'm', 3)}, {eng(r2, 'ohm m', 3)}: crossover {second} "
-                f"(first lamination {eng(sw.thickness, 'm', 3)}, {eng(sw.resistivity, 'ohm m', 3)}: {first}).")
+        text = (f"Second lamination {eng(d2, 'm', 3, prefix='m')}, {eng(r2, 'ohm m', 3)}: crossover {second} "
+                f"(first lamination {eng(sw.thickness, 'm', 3, prefix='m')}, {eng(sw.resistivity, 'ohm m', 3)}: "
+                f"{first}).")
         overlay = {"columns": {"freq": freqs, "classical": p2["classical"], "eddy": p2["eddy"], "total": p2["total"],
                                "steinmetz": p2["steinmetz"]},
                    "sweep": sw2, "crossover_freq": cx2.freq, "text": text, "thickness_m": d2, "resistivity_ohm_m": r2}
