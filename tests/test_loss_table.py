@@ -140,7 +140,7 @@ HEAD = "freq (Hz), b_peak (T), loss (W/m3)\n"
         ("50, 1, 10\n60, x1, 10\n", r"row 3, column 'b_peak \(T\)': cannot read 'x1' as a number"),
         ("-50, 1, 10\n", r"row 2, column 'freq \(Hz\)': frequency must be positive"),
         ("50, 1, 10, 4\n", r"row 2: 4 cells, the header has 3"),
-        ("\"50,5\", 1, 10\n", r"decimal point"),
+        ("\"50,5\", 1, 10\n", r"'50,5' as a number \(a decimal comma"),
     ],
 )
 def test_bad_cells_name_file_row_and_column(tmp_path, body, pattern):
@@ -174,7 +174,7 @@ def test_missing_columns_and_empty_files(tmp_path):
 
 
 def test_missing_file_is_a_clear_error(tmp_path):
-    with pytest.raises(ValueError, match=r"absent\.csv: cannot read the loss table: No such file"):
+    with pytest.raises(ValueError, match=r"absent\.csv: cannot read the loss table: no such file"):
         read_loss_table(tmp_path / "absent.csv")
 
 
@@ -220,3 +220,109 @@ def test_bundled_demo_table_reads_and_is_labelled_invented():
     t = read_loss_table(path)
     assert len(t) >= 20
     assert set(t.shape) == {"sine", "triangle"}
+
+
+# --- dialects of real exports (issue 10) -------------------------------------------------------
+# Values are the numbers the tests write; unit factors from the SI brochure (BIPM, 9th
+# edition, 2019, Table 7). All tables are invented.
+def test_semicolon_decimal_comma_table_with_preamble(tmp_path):
+    text = (
+        "Material;ferrite sample F-7 (invented)\n"
+        "Temperature chamber;100,0 °C\n"
+        "Operator;bench 2 (invented)\n"
+        "freq (kHz);b_peak (mT);loss (kW/m3);temp (C)\n"
+        "100;50,0;12,5;100\n"
+        "200;50,0;31,25;100\n"
+        "100;100,0;60;100\n"
+    )
+    t = read_loss_table(_write(tmp_path, text))
+    np.testing.assert_allclose(t.freq, [1e5, 2e5, 1e5], rtol=1e-15)
+    np.testing.assert_allclose(t.b_peak, [0.05, 0.05, 0.1], rtol=1e-15)
+    np.testing.assert_allclose(t.loss, [12.5e3, 31.25e3, 60e3], rtol=1e-15)
+    assert t.rows.tolist() == [5, 6, 7]
+    assert t.metadata["Temperature chamber"] == "100,0 °C"
+    assert t.metadata["decimal"] == "," and t.metadata["delimiter"] == "';'"
+
+
+def test_tab_table_and_explicit_options(tmp_path):
+    text = "f (Hz)\tb_peak (T)\tloss (W/m3)\n50\t1,5\t400\n60\t1,5\t500\n"
+    path = _write(tmp_path, text)
+    t = read_loss_table(path, delimiter="tab", decimal="comma")
+    np.testing.assert_array_equal(t.b_peak, [1.5, 1.5])
+    with pytest.raises(ValueError, match=r"row 2, column 'b_peak \(T\)': cannot read '1,5'"):
+        read_loss_table(path, decimal=".")
+    with pytest.raises(ValueError, match="cannot both be a comma"):
+        read_loss_table(path, delimiter=",", decimal=",")
+    with pytest.raises(ValueError, match="decimal must be"):
+        read_loss_table(path, decimal="x")
+
+
+def test_no_header_row_is_named(tmp_path):
+    with pytest.raises(ValueError, match=r"no header row naming the table's columns.*'a', 'b'"):
+        read_loss_table(_write(tmp_path, "a,b\n1,2\n"))
+
+
+# --- hostile cells and files (issue 11) ----------------------------------------------------------
+HEAD3 = "freq (Hz), b_peak (T), loss (W/m3)\n"
+
+
+@pytest.mark.parametrize(
+    ("row", "fragment"),
+    [
+        ("50, 1, 1e300\n", r"row 2: loss 1e\+300 W/m\^3 is outside what a core-loss measurement holds"),
+        ("50, 1e-320, 10\n", r"row 2: b_peak 1e-320 T is outside"),
+        ("1e-320, 1, 10\n", r"row 2: freq 1e-320 Hz is outside"),
+        ("50, 1, 1e999\n", r"'1e999' is beyond the range of a float"),
+        ("50, \uff15, 10\n", r"cannot read '\uff15' as a number \(only ASCII digits"),
+        ("50, 1, 1_000\n", r"cannot read '1_000' as a number \(digit separators"),
+        ("50, True, 10\n", r"cannot read 'True' as a number"),
+        ("50, 1, " + "9" * 200 + "\n", r"cannot read '9{30}\.\.\.' \(200 characters\)"),
+    ],
+)
+def test_hostile_cells_are_refused_with_the_cell_named(tmp_path, row, fragment):
+    with pytest.raises(ValueError, match=fragment) as info:
+        read_loss_table(_write(tmp_path, HEAD3 + row))
+    assert len(str(info.value)) < 300
+
+
+def test_overflowing_cell_never_reaches_the_fit(tmp_path):
+    # the Steinmetz fit raised OverflowError on a 1e300 cell; the reader refuses it first
+    rows = "".join(f"{f}, {b}, {10.0 * f ** 1.3 * b ** 2.5:.6g}\n" for f in (50, 100, 200) for b in (0.5, 1.0))
+    table = read_loss_table(_write(tmp_path, HEAD3 + rows))
+    assert len(table) == 6
+    with pytest.raises(ValueError, match="outside what a core-loss"):
+        read_loss_table(_write(tmp_path, HEAD3 + rows + "400, 1.0, 1e300\n"))
+
+
+@pytest.mark.parametrize(("cell", "ok"), [("-500", False), ("-273.15", True), ("1300", False), ("25", True)])
+def test_temperature_below_absolute_zero_is_refused(tmp_path, cell, ok):
+    text = "freq (Hz), b_peak (T), loss (W/m3), temp (C)\n50, 1, 10, " + cell + "\n"
+    if ok:
+        assert read_loss_table(_write(tmp_path, text)).temperature[0] == float(cell)
+    else:
+        with pytest.raises(ValueError, match=r"row 2: temperature .* degC is outside"):
+            read_loss_table(_write(tmp_path, text))
+
+
+def test_booleans_are_not_numbers():
+    with pytest.raises(ValueError, match="freq must be a number, got a boolean"):
+        loss_table_from_arrays(True, 1.0, 10.0)
+    with pytest.raises(ValueError, match="b_peak must hold numbers"):
+        loss_table_from_arrays([50.0, 60.0], [True, 1.0], [10.0, 12.0])
+    with pytest.raises(ValueError, match="density must be a number"):
+        read_loss_table(io.StringIO(HEAD3 + "50, 1, 10\n"), density=True)
+
+
+def test_long_line_and_non_regular_files(tmp_path):
+    import os
+
+    long_line = HEAD3 + "50, 1, " + "7" * 200_000 + "\n"
+    with pytest.raises(ValueError, match=r"row 2 is 200007 characters long") as info:
+        read_loss_table(_write(tmp_path, long_line))
+    assert len(str(info.value)) < 300
+    fifo = tmp_path / "fifo_table.csv"
+    os.mkfifo(fifo)
+    for path, fragment in [(fifo, "is a FIFO"), (tmp_path, "is a directory"),
+                           ("/dev/zero", "character device")]:
+        with pytest.raises(ValueError, match=fragment):
+            read_loss_table(path)

@@ -33,6 +33,15 @@ A column named only ``b`` or ``flux`` is ambiguous (peak or peak-to-peak) and ne
 ``flux_kind`` option. Loss given per kilogram needs the material ``density``. Every unit
 can also be given as an option when the header has none.
 
+Files as spreadsheets and instruments write them are read as they are: comma, semicolon
+or tab delimiters; a decimal point or a decimal comma (``0,5;120``, detected when the
+delimiter is not a comma, or given with ``decimal=``); a preamble of ``key<sep>value``
+lines before the header (kept in :attr:`LossTable.metadata`). Only regular files are read
+(a FIFO, a device or a directory is refused). Cells must be plain ASCII numbers: ``1_000``,
+full-width digits or ``True`` are refused with the cell named, and so are values outside
+what any core-loss measurement holds (``PLAUSIBLE``), such as a loss of 1e300 W/m^3 or a
+temperature below absolute zero.
+
 Row numbers in error messages are physical line numbers of the file (1-based, the header
 and comment lines included), so an editor jumps straight to the bad line.
 """
@@ -48,6 +57,7 @@ from pathlib import Path
 
 import numpy as np
 
+from workbench.capture.sources import open_regular_file
 from workbench.units import unit_scale
 
 __all__ = [
@@ -83,6 +93,58 @@ _NAME_ALIASES: dict[str, tuple[str, ...]] = {
 _LOOKUP = {alias: key for key, aliases in _NAME_ALIASES.items() for alias in aliases}
 _HEADER_RE = re.compile(r"^\s*(?P<name>[^(\[]*?)\s*(?:[(\[]\s*(?P<unit>[^)\]]*?)\s*[)\]])?\s*$")
 _TEMPERATURE_UNITS = {"c": 0.0, "degc": 0.0, "°c": 0.0, "deg c": 0.0, "℃": 0.0, "k": -273.15}
+
+#: Range of each quantity that a core-loss measurement can hold (SI; degC for temperature).
+#: Outside it a value is a wrong unit or a corrupt cell, and it would overflow the fits.
+#: freq: 1 mHz to 10 GHz, beyond any magnetic-core test (common practice, no source);
+#: b_peak: 1e-7 T to 10 T, above the saturation of every core material, Fe-Co near 2.4 T
+#: (from memory); loss: 1e-6 to 1e11 W/m^3 (100 kW/cm^3, far above any core that survives
+#: a measurement; common practice, no source); temperature: absolute zero -273.15 degC
+#: (SI brochure, 9th edition, 2019, 2.3.1) to 1200 degC, above the Curie temperature of
+#: every ferromagnetic material (cobalt, 1115 degC; from memory).
+PLAUSIBLE = {
+    "freq": (1e-3, 1e10, "Hz"),
+    "b_peak": (1e-7, 10.0, "T"),
+    "loss": (1e-6, 1e11, "W/m^3"),
+    "temperature": (-273.15, 1200.0, "degC"),
+}
+#: Longest line of a table [characters] and longest numeric cell; a row is a few numbers.
+MAX_LINE = 10_000
+MAX_CELL = 100
+_NUMBER_RE = {
+    ".": re.compile(r"^[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$", re.ASCII),
+    ",": re.compile(r"^[+-]?(?:\d+(?:,\d*)?|,\d+)(?:[eE][+-]?\d+)?$", re.ASCII),
+}
+_DECIMAL_COMMA_RE = re.compile(r"^[+-]?\d*,\d+(?:[eE][+-]?\d+)?$", re.ASCII)
+_NONFINITE_RE = re.compile(r"^[+-]?(?:nan|inf|infinity)$", re.IGNORECASE)
+
+
+def _cut(text: str, limit: int = 40) -> str:
+    text = str(text)
+    if len(text) <= limit:
+        return repr(text)
+    return repr(text[: limit - 10] + "...") + f" ({len(text)} characters)"
+
+
+def _plausible(name: str, values: np.ndarray, rows: np.ndarray, source: str) -> None:
+    """Refuse values outside PLAUSIBLE[name], naming the row."""
+    lo, hi, unit = PLAUSIBLE[name]
+    bad = ~((values >= lo) & (values <= hi))
+    if bad.any():
+        i = int(np.argmax(bad))
+        raise ValueError(
+            f"{source}: row {rows[i]}: {name} {float(values[i])!r} {unit} is outside what a "
+            f"core-loss measurement holds ({lo:g} to {hi:g} {unit}); check the unit or the cell"
+        )
+
+
+def _refuse_bool(name: str, value) -> None:
+    if isinstance(value, (bool, np.bool_)) or (
+        isinstance(value, np.ndarray) and value.dtype.kind == "b"
+    ):
+        raise ValueError(f"{name} must be a number, got a boolean {value!r}")
+    if isinstance(value, (list, tuple)) and any(isinstance(v, (bool, np.bool_)) for v in value):
+        raise ValueError(f"{name} must hold numbers, got a boolean in {_cut(repr(value))}")
 
 
 def _normalise_name(name: str) -> str:
@@ -121,6 +183,9 @@ class LossTable:
         DC bias field strength of each row [A/m], None without such a column.
     b_dc : ndarray or None
         DC bias flux density of each row [T], None without such a column.
+    metadata : dict
+        Preamble lines of the file before the header (``key -> value`` as written, or
+        ``"line N" -> text``) and the reader's ``delimiter`` and ``decimal``.
     """
 
     freq: np.ndarray
@@ -135,8 +200,11 @@ class LossTable:
     density: float | None = None
     h_dc: np.ndarray | None = None
     b_dc: np.ndarray | None = None
+    metadata: dict = field(default_factory=dict)
 
     def __post_init__(self):
+        for name in ("freq", "b_peak", "loss", "temperature", "duty", "h_dc", "b_dc"):
+            _refuse_bool(name, getattr(self, name))
         f = np.array(self.freq, dtype=float).ravel()
         n = f.size
         b = np.array(self.b_peak, dtype=float).ravel()
@@ -164,6 +232,10 @@ class LossTable:
         if temp is not None and not np.all(np.isfinite(temp)):
             i = int(np.argmax(~np.isfinite(temp)))
             raise ValueError(f"{self.source}: row {rows[i]}: temperature must be finite, got {temp[i]!r}")
+        for name, arr in (("freq", f), ("b_peak", b), ("loss", p)):
+            _plausible(name, arr, rows, self.source)
+        if temp is not None:
+            _plausible("temperature", temp, rows, self.source)
         for i, s in enumerate(shape):
             if s not in SHAPES:
                 raise ValueError(f"{self.source}: row {rows[i]}: shape must be one of {SHAPES}, got {s!r}")
@@ -202,6 +274,7 @@ class LossTable:
         object.__setattr__(self, "duty", duty)
         object.__setattr__(self, "rows", rows)
         object.__setattr__(self, "columns", dict(self.columns))
+        object.__setattr__(self, "metadata", dict(self.metadata))
 
     def __len__(self) -> int:
         return int(self.freq.size)
@@ -230,6 +303,7 @@ class LossTable:
             self.source, self.columns, self.density,
             None if self.h_dc is None else self.h_dc[idx],
             None if self.b_dc is None else self.b_dc[idx],
+            self.metadata,
         )
 
     def at_temperature(self, temperature: float, tol: float = 0.5) -> "LossTable":
@@ -289,6 +363,9 @@ def loss_table_from_arrays(freq, b_peak, loss, *, temperature=None, shape=None, 
     -------
     LossTable
     """
+    for name, value in (("freq", freq), ("b_peak", b_peak), ("loss", loss),
+                        ("temperature", temperature), ("duty", duty), ("h_dc", h_dc), ("b_dc", b_dc)):
+        _refuse_bool(name, value)
     f = np.atleast_1d(np.asarray(freq, dtype=float))
     n = f.size
     if shape is None:
@@ -307,15 +384,34 @@ def loss_table_from_arrays(freq, b_peak, loss, *, temperature=None, shape=None, 
 
 
 # --------------------------------------------------------------------------------------------
+#: Largest loss-table file read [bytes]; a table of measured points is a few kilobytes.
+MAX_TABLE_BYTES = 64 << 20
+
+
 def _read_text(path_or_buffer) -> tuple[str, str]:
     if isinstance(path_or_buffer, (str, os.PathLike)):
         path = Path(path_or_buffer)
         try:
-            text = path.read_text(encoding="utf-8-sig")
-        except UnicodeDecodeError as exc:
-            raise ValueError(f"{path}: not a UTF-8 text file ({exc.reason} at byte {exc.start})") from None
+            with open_regular_file(path) as fh:
+                raw = fh.read(MAX_TABLE_BYTES + 1)
+        except ValueError as exc:  # not a regular file, absent, unreadable
+            reason = str(exc).split(": ", 1)[-1]
+            raise ValueError(f"{path}: cannot read the loss table: {reason}") from None
         except OSError as exc:
             raise ValueError(f"{path}: cannot read the loss table: {exc.strerror or exc}") from None
+        if len(raw) > MAX_TABLE_BYTES:
+            raise ValueError(f"{path}: larger than {MAX_TABLE_BYTES >> 20} MiB; not a loss table")
+        try:
+            text = raw.decode("utf-8-sig")
+        except UnicodeDecodeError as exc:
+            try:
+                text = raw.decode("cp1252")  # spreadsheet exports on Windows ("µ", "°")
+            except UnicodeDecodeError:
+                raise ValueError(
+                    f"{path}: not a UTF-8 text file ({exc.reason} at byte {exc.start})"
+                ) from None
+        if "\x00" in text:
+            raise ValueError(f"{path}: binary file (NUL byte); expected a text table")
         return text, str(path)
     if hasattr(path_or_buffer, "read"):
         text = path_or_buffer.read()
@@ -342,6 +438,59 @@ def _delimiter(header: str) -> str:
     counts = {d: header.count(d) for d in (",", ";", "\t")}
     best = max(counts, key=counts.get)
     return best if counts[best] else ","
+
+
+_DELIM_WORDS = {",": ",", "comma": ",", ";": ";", "semicolon": ";", "\t": "\t", "tab": "\t"}
+_DECIMAL_WORDS = {".": ".", "point": ".", "dot": ".", ",": ",", "comma": ","}
+
+
+def _fields(line: str, delim: str) -> list[str]:
+    return [f.strip().strip('"').strip() for f in line.split(delim)]
+
+
+def _is_header(line: str, delim: str, extra_names) -> bool:
+    """True for a line naming at least two table columns (freq, flux, loss, ...)."""
+    names = []
+    for f in _fields(line, delim):
+        m = _HEADER_RE.match(f)
+        names.append(m["name"] if m else f)
+    known = sum(_normalise_name(n) in _LOOKUP or n in extra_names for n in names)
+    return known >= 2
+
+
+def _find_header(lines, source: str, delimiter, extra_names):
+    """(index of the header among `lines`, delimiter, metadata of the preamble lines)."""
+    for idx, (_number, line) in enumerate(lines[:200]):
+        delim = delimiter or _delimiter(line)
+        if _is_header(line, delim, extra_names):
+            metadata = {}
+            for num, pre in lines[:idx]:
+                for sep in (delim, ",", ";", "\t", ":", "="):
+                    if sep in pre:
+                        key, _, value = pre.partition(sep)
+                        if key.strip():
+                            metadata[key.strip()] = value.strip().strip(sep).strip()
+                            break
+                else:
+                    metadata[f"line {num}"] = pre.strip()
+            return idx, delim, metadata
+    first = lines[0][1]
+    fields = _fields(first, delimiter or _delimiter(first))
+    shown = ", ".join(_cut(f, 24) for f in fields[:6]) + (f", ... ({len(fields)} in all)" if len(fields) > 6 else "")
+    raise ValueError(
+        f"{source}: no header row naming the table's columns (freq, b_peak or b_pp, loss); "
+        f"the first line (row {lines[0][0]}) has {shown}"
+    )
+
+
+def _detect_decimal(data_rows, delim: str) -> str:
+    """',' when the delimiter is not a comma and a cell holds a decimal comma."""
+    if delim == ",":
+        return "."
+    for _, rec in data_rows[:500]:
+        if any(_DECIMAL_COMMA_RE.match(c.strip()) for c in rec):
+            return ","
+    return "."
 
 
 def _scale(unit_text: str, si: str, what: str, source: str) -> float:
@@ -375,22 +524,31 @@ def _loss_scale(unit_text: str, density, header: str, source: str) -> tuple[floa
     return per_kg * dens, dens
 
 
-def _parse_cell(text: str, source: str, row: int, header: str) -> float:
+def _parse_cell(text: str, source: str, row: int, header: str, decimal: str = ".") -> float:
     cell = text.strip()
+    where = f"{source}: row {row}, column {_cut(header, 30)}"
     if not cell:
-        raise ValueError(f"{source}: row {row}, column {header!r}: empty cell")
-    try:
-        value = float(cell)
-    except ValueError:
-        hint = " (use a decimal point, not a comma)" if re.fullmatch(r"[+-]?\d+,\d+", cell) else ""
-        raise ValueError(f"{source}: row {row}, column {header!r}: cannot read {cell!r} as a number{hint}") from None
+        raise ValueError(f"{where}: empty cell")
+    if _NONFINITE_RE.match(cell):
+        raise ValueError(f"{where}: value must be finite, got {cell!r}")
+    if len(cell) > MAX_CELL or not _NUMBER_RE[decimal].match(cell):
+        hint = ""
+        if decimal == "." and _DECIMAL_COMMA_RE.match(cell):
+            hint = " (a decimal comma: write a decimal point, or use ';' or tab between cells)"
+        elif "_" in cell:
+            hint = " (digit separators are not read)"
+        elif not cell.isascii():
+            hint = " (only ASCII digits are read)"
+        raise ValueError(f"{where}: cannot read {_cut(cell)} as a number{hint}")
+    value = float(cell.replace(",", ".") if decimal == "," else cell)
     if not math.isfinite(value):
-        raise ValueError(f"{source}: row {row}, column {header!r}: value must be finite, got {cell!r}")
+        raise ValueError(f"{where}: {cell!r} is beyond the range of a float")
     return value
 
 
 def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=None, flux_kind=None,
-                    loss_unit=None, density=None, temperature_unit=None) -> LossTable:
+                    loss_unit=None, density=None, temperature_unit=None, delimiter=None,
+                    decimal=None) -> LossTable:
     """Read a measured loss table from CSV.
 
     Parameters
@@ -409,11 +567,17 @@ def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=N
         header name (``b``, ``flux``) does not say.
     density : float, optional
         Material density [kg/m^3], needed when the loss is per mass (W/kg).
+    delimiter : str, optional
+        ``","``, ``";"`` or ``"\\t"`` (or ``"comma"``, ``"semicolon"``, ``"tab"``);
+        default: the most frequent of them in the header row.
+    decimal : str, optional
+        ``"."`` or ``","`` (``"point"``, ``"comma"``); default: a decimal comma when the
+        delimiter is not a comma and a cell is written with one, else a point.
 
     Returns
     -------
     LossTable
-        Points in SI units with their file line numbers.
+        Points in SI units with their file line numbers; preamble lines in ``metadata``.
 
     Raises
     ------
@@ -428,13 +592,39 @@ def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=N
     loss per volume with :math:`P_v = P_m\\,\\rho_m`. Temperatures in K are shifted by
     -273.15 to degC.
     """
+    if delimiter is not None:
+        if not isinstance(delimiter, str) or delimiter.lower() not in _DELIM_WORDS:
+            raise ValueError(f"delimiter must be ',', ';' or tab, got {_cut(repr(delimiter))}")
+        delimiter = _DELIM_WORDS[delimiter.lower()]
+    if decimal is not None:
+        if not isinstance(decimal, str) or decimal.lower() not in _DECIMAL_WORDS:
+            raise ValueError(f"decimal must be '.' or ',', got {_cut(repr(decimal))}")
+        decimal = _DECIMAL_WORDS[decimal.lower()]
+        if decimal == "," and delimiter == ",":
+            raise ValueError("delimiter and decimal cannot both be a comma")
+    if density is not None:
+        _refuse_bool("density", density)
     text, source = _read_text(path_or_buffer)
     lines = _split_lines(text, source)
+    for number, line in lines:
+        if len(line) > MAX_LINE:
+            raise ValueError(f"{source}: row {number} is {len(line)} characters long; a loss-table "
+                             f"row is a few numbers (at most {MAX_LINE} characters read)")
+    extra = {str(v) for v in dict(columns or {}).values()}
+    start, delim, metadata = _find_header(lines, source, delimiter, extra)
+    lines = lines[start:]
     header_no, header_line = lines[0]
-    delim = _delimiter(header_line)
-    records = list(csv.reader(io.StringIO("\n".join(line for _, line in lines)), delimiter=delim))
+    try:
+        records = list(csv.reader(io.StringIO("\n".join(line for _, line in lines)), delimiter=delim))
+    except csv.Error as exc:
+        raise ValueError(f"{source}: not a readable table: {exc}") from None
     header = [h.strip() for h in records[0]]
     data_rows = [(num, rec) for (num, _), rec in zip(lines[1:], records[1:])]
+    if decimal is None:
+        decimal = _detect_decimal(data_rows, delim)
+    elif decimal == "," and delim == ",":
+        raise ValueError(f"{source}: the table is comma-separated; its decimal mark cannot be a comma")
+    metadata.update(delimiter={",": "','", ";": "';'", "\t": "tab"}[delim], decimal=decimal)
 
     # map header -> glossary name
     parsed = []
@@ -539,7 +729,7 @@ def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=N
             raise ValueError(f"{source}: row {num}: {len(rec)} cells, the header has {len(header)}")
 
         def cell(key, rec=rec, num=num):
-            return _parse_cell(rec[wanted[key]], source, num, header[wanted[key]])
+            return _parse_cell(rec[wanted[key]], source, num, header[wanted[key]], decimal)
 
         for key, name, scale in (("freq", "freq", f_scale), ("b", flux_key, b_scale), ("loss", "loss", p_scale)):
             value = cell(name)
@@ -572,7 +762,8 @@ def read_loss_table(path_or_buffer, *, columns=None, freq_unit=None, flux_unit=N
     cols = {k: header[i] for k, i in wanted.items()}
     bias = {bias_key: out["bias"]} if bias_key is not None else {}
     return LossTable(out["freq"], out["b"], out["loss"], out["temp"] if t_offset is not None else None,
-                     tuple(shapes), out["duty"], row_numbers, source, cols, used_density, **bias)
+                     tuple(shapes), out["duty"], row_numbers, source, cols, used_density, **bias,
+                     metadata=metadata)
 
 
 def write_loss_table(table: LossTable, path, *, comment: str | None = None) -> Path:
