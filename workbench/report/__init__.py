@@ -24,11 +24,17 @@ from workbench.report.export import (
     write_json,
 )
 from workbench.report.numbers import eng, eng_column, eng_parts, unit_label
+from workbench.report.records import capture_record, condition_inputs, emit_report, loss_result_record, sweep_record
 
 __all__ = [
     "CAUTIONS",
     "atomic_write_text",
     "build_record",
+    "capture_record",
+    "condition_inputs",
+    "emit_report",
+    "loss_result_record",
+    "sweep_record",
     "default_export_folder",
     "eng",
     "eng_column",

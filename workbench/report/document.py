@@ -279,7 +279,11 @@ def render_report(record: Mapping, plots=None) -> str:
     str
     """
     from bokeh.embed import components
-    from bokeh.resources import INLINE
+    from bokeh.resources import Resources
+
+    # BokehJS inlined (the page opens offline); the core bundle is all these plots use, where
+    # bokeh.resources.INLINE with every bundle (maths, tables, WebGL, widgets) would add ~3 MB
+    inline = Resources(mode="inline", components=["bokeh"])
 
     title = str(record.get("title") or record.get("kind") or "analysis")
     if plots is None:
@@ -326,7 +330,7 @@ def render_report(record: Mapping, plots=None) -> str:
     head_res = ""
     if plots is not None:
         script, div = components(plots)
-        head_res = INLINE.render_js() + INLINE.render_css() + script
+        head_res = inline.render_js() + inline.render_css() + script
         parts.append(f'<h2>Plots</h2><div class="fluxheat-plots">{div}</div>')
     parts.append(f'<p class="meta">Written by {html.escape(PACKAGE_NAME)} {html.escape(str(record.get("version", "")))} '
                  f'on {html.escape(str(record.get("created_utc", "")))}. Values in SI with engineering prefixes; the JSON '
