@@ -29,6 +29,8 @@ def register(subparsers) -> argparse.ArgumentParser:
     add_model_options(p, required=True)
     p.add_argument("--volume", help="core volume, e.g. 4.2cm3, for the loss in watts")
     p.add_argument("--json", action="store_true", help="print one JSON document (SI units)")
+    p.add_argument("--report", metavar="FILE.html", help="also write an HTML report (opens offline) with JSON and "
+                   "CSV beside it; an existing name gets a new suffix")
     p.set_defaults(func=run)
     return p
 
@@ -70,6 +72,12 @@ def run(args) -> int:
     out.update(shape=spec.shape, duty=described["duty"])
     if volume is not None:
         out.update(volume_m3=volume, loss_w=res.loss_w(volume))
+    if args.report:
+        from workbench.report import condition_inputs, emit_report, loss_result_record
+
+        inputs = condition_inputs(described, cond, frequency_hz=spec.freq, volume_m3=volume)
+        emit_report(loss_result_record("shape", inputs, res, material=cond["material"], volume=volume,
+                                       waveform=spec.waveform()), args.report, to_stderr=args.json)
     if args.json:
         emit_json(out)
         return 0
