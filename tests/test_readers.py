@@ -913,3 +913,29 @@ def test_npz_huge_values_and_channels_option(tmp_path):
         read_capture(path, channels={"winding": "voltage"})
     with pytest.raises(CaptureError, match="decimal= does not apply"):
         read_capture(path, decimal=",")
+
+
+# --------------------------------------------------------------------------------------------
+# command-line reader options (workbench/cli/reader_options.py) pass through to the reader
+# --------------------------------------------------------------------------------------------
+def test_cli_reader_options_pass_through(tmp_path):
+    import argparse
+
+    from workbench.cli.reader_options import add_reader_arguments, reader_options_from_args
+
+    parser = argparse.ArgumentParser()
+    add_reader_arguments(parser)
+    args = parser.parse_args(["--delimiter", "semicolon", "--decimal", "comma", "--channel", "CH2=current",
+                              "--channel", "1=voltage", "--time-unit", "us", "--unit", "i=mA"])
+    options = reader_options_from_args(args)
+    assert options == {"delimiter": ";", "decimal": ",", "channels": {"CH2": "current", 1: "voltage"},
+                       "time_unit": "us", "units": {"i": "mA"}}
+    path = tmp_path / "scope.csv"
+    path.write_text("TIME;CH1;CH2\n0;1,5;2\n1;1,5;2\n2;1,5;2\n")
+    cap = read_capture(path, **options)
+    np.testing.assert_allclose(cap.time, [0, 1e-6, 2e-6], rtol=1e-15)
+    np.testing.assert_allclose(cap.channels["i"], 2e-3, rtol=1e-15)
+    assert cap.columns["v"] == "CH1"
+    assert reader_options_from_args(parser.parse_args([])) == {}
+    with pytest.raises(ValueError, match="--channel 'CH2': expected NAME=VALUE"):
+        reader_options_from_args(parser.parse_args(["--channel", "CH2"]))
