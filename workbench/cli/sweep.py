@@ -36,6 +36,8 @@ def register(subparsers) -> argparse.ArgumentParser:
     p.add_argument("--points", default="50", help="number of frequencies, geometric spacing (default 50)")
     p.add_argument("--with-excess", action="store_true", help="the crossover counts the excess part as eddy loss")
     p.add_argument("--json", action="store_true", help="print one JSON document (SI units)")
+    p.add_argument("--report", metavar="FILE.html", help="also write an HTML report (opens offline) with JSON and "
+                   "CSV beside it; an existing name gets a new suffix")
     p.set_defaults(func=run)
     return p
 
@@ -78,6 +80,14 @@ def run(args) -> int:
     out.update(described)
     if capture is not None:
         out["warnings"] = list(capture.warnings) + out["warnings"]
+    if args.report:
+        from workbench.report import condition_inputs, emit_report, file_entry, sweep_record
+
+        inputs = condition_inputs(described, {**cond, "material": material}, f_min_hz=f_from, f_max_hz=f_to,
+                                  n_points=points, excess_counted_as_eddy=args.with_excess)
+        files = [file_entry(described["capture"], role="capture")] if capture is not None else None
+        emit_report(sweep_record(inputs, sw, material=material, extra_warnings=capture.warnings if capture else (),
+                                 files=files), args.report, to_stderr=args.json)
     if args.json:
         emit_json(out)
         return 0
