@@ -238,6 +238,8 @@ def register(subparsers) -> argparse.ArgumentParser:
     add_capture_options(p)
     add_model_options(p)
     p.add_argument("--json", action="store_true", help="print one JSON document (SI units)")
+    p.add_argument("--report", metavar="FILE.html", help="also write an HTML report (opens offline) with JSON and "
+                   "CSV beside it; an existing name gets a new suffix")
     p.set_defaults(func=run)
     return p
 
@@ -254,6 +256,10 @@ def run(args) -> int:
         raise ValueError(f"{args.file}: no such file")
     settings = {**capture_settings(args), **model_settings(args)}
     result = analyse_file(path, reader_options=reader_options(args), **settings)
+    if args.report:
+        from workbench.report import capture_record, emit_report
+
+        emit_report(capture_record(result, path, material=settings.get("material")), args.report, to_stderr=args.json)
     if args.json:
         emit_json(result.to_dict())
     else:
