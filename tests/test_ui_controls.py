@@ -228,6 +228,8 @@ def test_legend_lists_only_drawn_curves_and_the_combined_eddy_curve(fp):
 # -- comparison: stable colours, watts ------------------------------------------------------------
 def test_material_colour_does_not_depend_on_the_selection():
     p = ComparisonPanel(("M270-35A", "nanocrystalline", "mnzn-power-ferrite"), volume="10 cm3")
+    # the first materials shown differ in colour and are drawn solid inside their fitted ranges
+    assert len(set(p.loss_source.data["colour"])) == 3 and set(p.loss_source.data["dash"]) == {"solid"}
     colour = dict(zip(p.loss_source.data["material"], zip(p.loss_source.data["colour"], p.loss_source.data["dash"])))
     p.controls.materials.value = ("nanocrystalline",)
     assert dict(zip(p.loss_source.data["material"], p.loss_source.data["colour"]))["nanocrystalline"] == \

@@ -194,7 +194,7 @@ def test_frequency_panel_renders_and_responds(lab_server):
             }""")
             assert n_points == 400
 
-            panel = crossover.first.locator("xpath=ancestor::div[contains(@class,'widget-vbox')][1]")
+            panel = page.locator(".fluxheat-panel-frequency-sweep").first
             canvas = panel.locator(".bk-Canvas canvas").first
             canvas.wait_for(timeout=30_000)
             ink_before = _ink(canvas.screenshot())

@@ -16,7 +16,7 @@ from workbench.report.plotting import apply_axis_format, hover_formatter, tick_f
 from workbench.ui.base import PanelBase
 from workbench.ui.controls import ExportBar, LogValue, QuantityText, caution_widget, heading
 from workbench.ui.state import ComparisonSettings, ComparisonView, comparison_view
-from workbench.ui.style import ROLE_COLOURS, material_style, new_figure, style_figure
+from workbench.ui.style import ROLE_COLOURS, MaterialStyles, new_figure, style_figure
 
 __all__ = ["ComparisonPanel"]
 
@@ -52,7 +52,7 @@ class ComparisonPanel(PanelBase):
         Display this.
     controls : types.SimpleNamespace
         ``materials, shape, duty, b_peak, loss_density, design_freq, f_min, f_max, loss_axis, volume``.
-        Each material keeps its colour whatever else is selected (:func:`workbench.ui.style.material_style`).
+        Each material keeps its colour whatever else is selected (:class:`workbench.ui.style.MaterialStyles`).
     loss_source, loss_source_extrapolated, fb_source, fb_source_extrapolated : ColumnDataSource
         Multi-line columns ``xs, ys, material, colour, dash``; the ``_extrapolated``
         sources hold the parts outside each material's fitted ranges.
@@ -74,7 +74,7 @@ class ComparisonPanel(PanelBase):
         super().__init__()
         c = self.controls
         names = list_materials()
-        self._library = names
+        self._styles = MaterialStyles(materials)  # a material keeps its colour whatever else is selected
         # every name visible at once: no selected material hides below a scroll
         c.materials = widgets.SelectMultiple(options=names, value=tuple(materials), rows=len(names),
                                              description="materials (ctrl-click)",
@@ -176,7 +176,7 @@ class ComparisonPanel(PanelBase):
 
     def _refresh(self):
         s = self.settings()
-        styles = [material_style(name, self._library) for name in s.materials]
+        styles = [self._styles.style(name) for name in s.materials]
         view = comparison_view(s, colours=[c for c, _ in styles], dashes=[d for _, d in styles])
         self.view = view
         self.controls.duty.disabled = s.shape == "sine"
@@ -236,7 +236,7 @@ class ComparisonPanel(PanelBase):
             align = "left" if j == 0 else "right"
             swatch = ""
             if i > 0 and j == 0:
-                colour, _ = material_style(x, self._library)
+                colour, _ = self._styles.style(x)
                 swatch = f'<span style="display:inline-block;width:14px;height:4px;background:{colour};margin:0 6px 3px 0"></span>'
             return f'<{tag} style="padding:2px 10px;text-align:{align}">{swatch}{html.escape(x)}</{tag}>'
 

@@ -290,8 +290,8 @@ class ExportBar:
                                  layout=widgets.Layout(width="260px"))
         self.replace = widgets.Checkbox(value=False, description="replace existing files", indent=False,
                                         layout=widgets.Layout(width="180px"))
-        self.button = widgets.Button(description="Export report (HTML + JSON + CSV)", icon="download",
-                                     layout=widgets.Layout(width="270px"),
+        self.button = widgets.Button(description="Export report", icon="download",
+                                     layout=widgets.Layout(width="170px"),
                                      tooltip="A report page with inputs, results, warnings and plots (opens offline), "
                                              "and the same record as JSON and CSV")
         self.status = widgets.HTML()

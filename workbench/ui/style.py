@@ -19,7 +19,7 @@ __all__ = [
     "EXTRAPOLATED_FILL",
     "series_style",
     "MATERIAL_COLOURS",
-    "material_style",
+    "MaterialStyles",
     "style_figure",
     "new_figure",
 ]
@@ -106,22 +106,34 @@ def new_figure(name: str, *, title: str, x_label: str, y_label: str, x_log: bool
 MATERIAL_COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
 
 
-def material_style(name: str, names) -> tuple[str, str]:
-    """Colour and dash of a material, fixed by its place in the whole library (not in the selection).
+class MaterialStyles:
+    """Colour and dash of each material, kept for the life of a panel whatever else is selected.
+
+    A material gets the next free colour the first time it is shown, so the first seven
+    materials on screen all differ in colour (solid lines); later ones repeat the colours
+    with another dash. Once given, a material's style never changes.
 
     Parameters
     ----------
-    name : str
-        Material name.
-    names : sequence of str
-        Every material name, in library order (``workbench.materials.list_materials()``).
-
-    Returns
-    -------
-    (str, str)
-        The same pair for a material whatever else is selected.
+    names : sequence of str, optional
+        Materials to give styles to first, in order.
     """
-    names = list(names)
-    i = names.index(name) if name in names else len(names) + sum(map(ord, name))
-    n = len(MATERIAL_COLOURS)
-    return MATERIAL_COLOURS[i % n], SERIES_DASHES[(i // n) % len(SERIES_DASHES)]
+
+    def __init__(self, names=()):
+        self._styles: dict[str, tuple[str, str]] = {}
+        for name in names:
+            self.style(name)
+
+    def style(self, name: str) -> tuple[str, str]:
+        """(colour, dash) of ``name``.
+
+        Parameters
+        ----------
+        name : str
+            Material name.
+        """
+        if name not in self._styles:
+            i = len(self._styles)
+            n = len(MATERIAL_COLOURS)
+            self._styles[name] = (MATERIAL_COLOURS[i % n], SERIES_DASHES[(i // n) % len(SERIES_DASHES)])
+        return self._styles[name]
