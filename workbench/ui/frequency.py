@@ -107,7 +107,8 @@ class FrequencyPanel(PanelBase):
         rho = mat.resistivity if resistivity is None else float(resistivity)
         self.waveform = waveform
         self.waveform_name = str(waveform_name)
-        shapes = list(SHAPES) + ([(f"captured: {self.waveform_name}", _WAVEFORM)] if waveform is not None else [])
+        shapes = [(name, name) for name in SHAPES] + (
+            [(f"captured: {self.waveform_name}", _WAVEFORM)] if waveform is not None else [])
         c = self.controls
         c.material = widgets.Dropdown(options=list_materials(), value=mat.name, description="material", **_WIDE)
         c.shape = widgets.Dropdown(options=shapes, value=_WAVEFORM if waveform is not None else shape,
