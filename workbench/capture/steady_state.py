@@ -707,6 +707,8 @@ def _shifted_row_sums(y: np.ndarray, starts: np.ndarray, weights: np.ndarray, wi
             np.multiply(row, e, out=tmp)
             total_e += tmp
         return total_s, total_e
+    if starts.size == 0:  # no row lies wholly inside y (a record barely longer than the fold)
+        return total_s, total_e
     rows = sliding_window_view(y, width)
     per = max(1, CHUNK // width)
     for s in range(0, starts.size, per):
