@@ -24,22 +24,35 @@ Conventions for a panel (follow them when adding one, e.g. a fitting panel)
   ``jupyter_bokeh.BokehModel`` is made, so the page starts from the first result
   (later changes travel as document events).
   Use ``with panel.hold():`` to change several controls with one recompute.
-* **Errors are shown, never swallowed.** An exception in ``_refresh`` goes to the
-  ``panel.errors`` Output widget and ``panel.last_error``; the plots keep the last
-  good result.
+* **Errors at the control, never swallowed.** Each shown control sits in a
+  :class:`~workbench.ui.controls.Field` (``self.field(name)``) and ``settings()`` reads
+  controls through ``self._read(name, ...)``; a ``ValueError`` there, or an
+  :class:`~workbench.ui.state.InputError` naming settings (mapped to controls by
+  ``param_controls``), marks that control red with the message beside it. The message
+  also goes to ``panel.errors`` (shown under the controls) and ``panel.last_error``, and
+  the results (``panel.results_box``) are hidden with a notice until the inputs are valid.
 * **No side effects at import or in constructors:** no ``display()``, no
   ``output_notebook()``. Notebooks call
   ``bokeh.io.output_notebook(resources=INLINE, hide_banner=True)`` themselves.
-* **Log sliders** use fine steps (``step=0.001`` in the exponent): the browser
-  snaps a value set from code to the slider grid and sends the snapped value back.
+* **Log quantities** use :class:`~workbench.ui.controls.LogValue`: a slider whose arrow
+  step is 2 % and a text box whose typed value is used exactly; the browser's echoes of
+  values set from code (snapped to the slider grid, sometimes late) are ignored.
+* **Numbers** on screen, in hovers, on axes and in reports go through
+  :mod:`workbench.report.numbers` (:func:`~workbench.report.numbers.eng`,
+  :func:`~workbench.report.numbers.eng_column` for one unit per table column) and
+  :mod:`workbench.report.plotting` (tick and hover formatters by the same rule).
 * **Look:** colours, dashes and fonts from :mod:`workbench.ui.style` (P. Tol's
-  colour-blind-safe "bright" scheme; each loss part keeps its colour in every
-  panel); log axes where the physics is log-log; axis labels with units; a hover
+  colour-blind-safe "bright" scheme for the loss parts, each keeping its colour in every
+  panel; Okabe & Ito's palette for materials, a material keeping its colour for the
+  panel's life); log axes where the physics is log-log; axis labels with units; a hover
   readout; ``continuous_update=False`` on controls whose recompute is heavy.
 * **Every panel shows** the caution line (:func:`~workbench.ui.controls.caution_widget`)
   and an export bar (:class:`~workbench.ui.controls.ExportBar`) wired to
-  ``PanelBase.export``, which writes ``record()`` to JSON, ``table()`` to CSV and
-  ``plots`` to standalone HTML through :mod:`workbench.report` (atomic writes).
+  ``PanelBase.export``, which writes the report page (``record()`` with its inputs, table,
+  statements, warnings and cautions, and the panel's ``plots``; opens offline) with the
+  JSON and the CSV (``table()``) beside it through :func:`workbench.report.write_report`:
+  never over an existing file unless "replace" is ticked, by default into
+  :func:`workbench.report.default_export_folder` (outside the repository).
 * **Tests** are plain pytest (``tests/test_ui_<panel>.py``): set ``control.value``,
   assert on ``panel.view`` / ``source.data`` against values computed outside the
   panel; the browser test only proves that a panel renders and responds.
