@@ -18,6 +18,7 @@ from __future__ import annotations
 import argparse
 import math
 
+from workbench.cli.reader_options import add_reader_arguments, reader_options_from_args
 from workbench.units import format_quantity, parse_checked, parse_quantity
 
 #: One-line caution printed under every human-readable result.
@@ -95,17 +96,6 @@ def model_settings(args) -> dict:
     return out
 
 
-def _pairs(items, option: str) -> dict:
-    out = {}
-    for item in items or ():
-        name, sep, value = item.partition("=")
-        if not sep or not name.strip() or not value.strip():
-            raise ValueError(f"{option}: expected NAME=VALUE, got {item!r}")
-        value = value.strip()
-        out[name.strip()] = int(value) if value.isdigit() else value
-    return out
-
-
 def add_capture_options(p: argparse.ArgumentParser, *, required: bool = True) -> None:
     """Geometry and reader options of a capture (``required=False`` where a capture is one choice of several)."""
     g = p.add_argument_group("core and windings")
@@ -119,14 +109,7 @@ def add_capture_options(p: argparse.ArgumentParser, *, required: bool = True) ->
                                                 "0.8 or 800m [ohm]: R i is taken off the voltage and I_rms^2 R off the loss")
     g.add_argument("--deskew", help="delay of the current probe against the voltage probe, e.g. 3ns [s]: the current "
                                     "is shifted back by it before the loss integral")
-    r = p.add_argument_group("reading the file")
-    r.add_argument("--time-column", help="time column: header name or 0-based index")
-    r.add_argument("--column", action="append", metavar="CHANNEL=COLUMN",
-                   help="read channel b, flux, v, v_sense or i from a header name or 0-based index; repeatable")
-    r.add_argument("--delimiter", choices=("comma", "semicolon", "tab", "space"),
-                   help="column delimiter (default: detected)")
-    r.add_argument("--time-unit", help="unit of the time column when the header has none, e.g. us")
-    r.add_argument("--unit", action="append", metavar="CHANNEL=UNIT", help="unit of a channel, e.g. v_sense=mV; repeatable")
+    add_reader_arguments(p)
 
 
 def capture_settings(args) -> dict:
@@ -145,18 +128,7 @@ def capture_settings(args) -> dict:
 
 def reader_options(args) -> dict:
     """Keyword arguments of :func:`workbench.capture.read_capture` from arguments."""
-    out: dict = {}
-    if args.time_column is not None:
-        out["time_column"] = int(args.time_column) if args.time_column.isdigit() else args.time_column
-    if args.column:
-        out["columns"] = _pairs(args.column, "--column")
-    if args.delimiter:
-        out["delimiter"] = {"comma": ",", "semicolon": ";", "tab": "\t", "space": " "}[args.delimiter]
-    if args.time_unit:
-        out["time_unit"] = args.time_unit
-    if args.unit:
-        out["units"] = {k: str(v) for k, v in _pairs(args.unit, "--unit").items()}
-    return out
+    return reader_options_from_args(args)
 
 
 def _fmt(value, unit: str, digits: int = 4) -> str:
