@@ -192,7 +192,7 @@ def test_report_carries_inputs_results_statements_and_never_overwrites(tmp_path)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["run-2.csv", "run-2.html", "run-2.json", "run.csv",
                                                           "run.html", "run.json"]
     text = first.read_text()
-    for needle in ("Demo report", "b peak", "1.000 T", "50.00 Hz", "350.0 µm", "M270-35A", "loss density [kW/m³]",
+    for needle in ("Demo report", "b peak", "1.000 T", "50.00 Hz", "0.3500 mm", "M270-35A", "loss density [kW/m³]",
                    "12.35", "Crossover at 865.2 Hz", "demo warning", "temperature rise", "hazardous voltages",
                    f"version <span class=\"fluxheat-version\">{__version__}</span>", "demo_loss"):
         assert needle in text, needle

@@ -181,6 +181,8 @@ def _value_text(key: str, value) -> str:
     if isinstance(value, bool):
         return "yes" if value else "no"
     if isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool):
+        if unit == "m" and "thickness" in key:  # laminations are quoted in mm
+            return eng(float(value), unit, 4, prefix="m")
         if unit:
             return eng(float(value), unit, 4)
         return f"{value:.6g}" if isinstance(value, float) else str(value)
