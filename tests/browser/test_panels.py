@@ -119,14 +119,18 @@ def test_frequency_panel_marks_bad_input_and_hides_stale_results(page, server):
         ops = _text_box(panel, "operating points [Hz]")
         ops.fill("50, 400, 20k")
         ops.press("Enter")
-        page.wait_for_function("() => document.querySelector('.fluxheat-readout table') !== null", timeout=30_000)
+        page.wait_for_function(
+            "() => { const t = document.querySelector('.fluxheat-readout table');"
+            " return t !== null && t.innerText.includes('20.00 kHz'); }", timeout=30_000)
         readout = panel.locator(".fluxheat-readout").inner_text()
         for f in ("50.00 Hz", "400.0 Hz", "20.00 kHz"):
             assert f in readout, readout
         second = _text_box(panel, "second thickness [mm]")
-        second.fill("0.35")
+        second.fill("0.27")
         second.press("Enter")
-        page.wait_for_function("() => document.querySelector('.fluxheat-overlay') !== null", timeout=30_000)
+        page.wait_for_function(
+            "() => { const o = document.querySelector('.fluxheat-overlay');"
+            " return o !== null && o.innerText.includes('0.270 mm'); }", timeout=30_000)
         wait_idle(server)
         _shot(panel, "frequency_panel")
         # an invalid input: marked at its box, message beside it, results hidden

@@ -56,7 +56,7 @@ def test_panel_report_opens_offline_with_numbers_and_plots(tmp_path):
                 "Bokeh.documents[0].get_model_by_name('loss_vs_frequency') !== null", timeout=60_000)
             text = page.inner_text("body")
             # inputs with units, material and provenance, version, the crossover statement, the readout table
-            for needle in ("M400-50A", "Provenance", "1.000 T", "200.0 µm", "12.00 cm³", "skin effect",
+            for needle in ("M400-50A", "Provenance", "1.000 T", "0.2000 mm", "12.00 cm³", "skin effect",
                            "Crossover at", "Skin-effect knee", "temperature rise", "hazardous voltages"):
                 assert needle in text, needle
             from workbench.report.numbers import eng
@@ -77,3 +77,44 @@ def test_panel_report_opens_offline_with_numbers_and_plots(tmp_path):
         finally:
             browser.close()
     assert blocked == [], f"the report asked the network for {blocked}"
+
+
+def test_axis_ticks_on_a_narrow_log_range_and_a_linear_megahertz_axis(tmp_path):
+    """20 Hz - 2 kHz on a log axis has 1-2-5 ticks (not only 100 and 1k); a linear axis reads 1M, not 1m."""
+    chromium = _context()
+    import numpy as np
+    from playwright.sync_api import sync_playwright
+
+    from workbench.report import build_record, write_report
+
+    f = np.geomspace(20, 2000, 50)
+    lin = np.linspace(0, 1.5e6, 50)
+    rec = build_record("ticks", {}, {}, title="tick check (invented numbers)",
+                       series={"f_hz": f, "p_w_m3": f ** 1.6, "flin_hz": lin, "w_j_m3": 1 + lin / 1e5},
+                       plots=[{"name": "narrow_log", "title": "log", "x": "f_hz", "ys": [("p_w_m3", "P")],
+                               "x_label": "f [Hz]", "y_label": "P [W/m³]", "x_unit": "Hz", "y_unit": "W/m3",
+                               "x_log": True, "y_log": True},
+                              {"name": "linear_mhz", "title": "linear", "x": "flin_hz", "ys": [("w_j_m3", "W")],
+                               "x_label": "f [Hz]", "y_label": "W [J/m³]", "x_unit": "Hz", "y_unit": "J/m3"}])
+    path = write_report(rec, tmp_path / "ticks.html")
+    with sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=chromium, headless=True, args=CHROMIUM_ARGS)
+        try:
+            context = browser.new_context()
+            context.route(re.compile(r"^(?!file:|data:|blob:).*"), lambda route: route.abort())
+            page = context.new_page()
+            page.goto(path.resolve().as_uri())
+            page.wait_for_function("() => window.Bokeh && Bokeh.documents.length > 0", timeout=60_000)
+            got = page.evaluate("""() => {
+                const doc = Bokeh.documents[0];
+                const log = doc.get_model_by_name('narrow_log'), lin = doc.get_model_by_name('linear_mhz');
+                const ax = log.below[0];
+                const major = ax.ticker.get_ticks(20, 2000, log.x_range, NaN).major;
+                return {major: major, labels: ax.formatter.doFormat(major, {loc: 0}),
+                        lin: lin.below[0].formatter.doFormat([0, 500000, 1000000, 1500000], {loc: 0})};
+            }""")
+        finally:
+            browser.close()
+    assert got["major"] == [20, 50, 100, 200, 500, 1000, 2000]
+    assert got["labels"] == ["20", "50", "100", "200", "500", "1k", "2k"]
+    assert got["lin"] == ["0", "500k", "1M", "1.5M"]  # M is mega (SI Brochure, 9th ed., Table 7)
