@@ -171,8 +171,8 @@ def uniform_grid(t, channels):
     interval of the ideal grid already are that grid up to floating-point
     rounding, and are returned as they are (no copy; the values are not copied
     either). Otherwise the signals are linearly interpolated onto a grid with
-    the median interval (or, for very uneven steps, the interval that gives 16
-    times the record's samples). The check runs over the record in cache-sized chunks.
+    the record's fine interval (its 5th-percentile step, so that a simulator's
+    fine steps at the edges are resolved; at most 16 times the record's samples). The check runs over the record in cache-sized chunks.
     """
     t = np.asarray(t, dtype=float).ravel()
     y = np.atleast_2d(np.asarray(channels, dtype=float))
@@ -202,7 +202,9 @@ def uniform_grid(t, channels):
         )
     # a simulator's adaptive steps (many tiny steps on the edges) would make the median grid
     # far denser than the record: the grid holds at most MAX_GRID_FACTOR times its samples
-    step = max(step, span / (MAX_GRID_FACTOR * t.size))
+    # The grid resolves the record's fine steps (a simulator steps finely exactly where the
+    # signal jumps: the edges of a square voltage), so take its 5th-percentile step, not the median.
+    step = max(min(step, float(np.percentile(steps, 5))), span / (MAX_GRID_FACTOR * t.size))
     grid = t[0] + np.arange(int(np.floor(span / step)) + 1) * step
     return grid, np.array([np.interp(grid, t, row) for row in y]), True
 
