@@ -127,3 +127,16 @@ def test_captured_period_swept_in_the_frequency_panel():
     fp.controls.operating_freqs.value = f"{a.freq!r}, {2 * a.freq!r}"
     lo, hi = (r["loss_w_m3"] for r in fp.readout_rows)
     assert hi > lo
+
+
+def test_bad_and_missing_geometry_is_marked_at_its_box(panel):
+    from workbench.ui.controls import INVALID_CLASS
+
+    panel.controls.turns.value = "twenty"
+    marked = [n for n, f in panel.fields.items() if INVALID_CLASS in f._dom_classes]
+    assert marked == ["turns"] and panel.stale and "twenty" in panel.fields["turns"].message.value
+    panel.controls.turns.value = ""  # a two-winding capture needs it: the empty box is the one marked
+    marked = [n for n, f in panel.fields.items() if INVALID_CLASS in f._dom_classes]
+    assert marked == ["turns"] and panel.stale
+    panel.controls.turns.value = "100"
+    assert panel.last_error is None and not panel.stale

@@ -252,8 +252,9 @@ class CapturePanel(PanelBase):
             hits = [n for n, key in (("turns", "--turns"), ("sense_turns", "--sense-turns"), ("area", "--area"),
                                      ("volume", "--volume"), ("path_length", "--path-length"),
                                      ("temperature", "--temperature")) if key in text]
-            if hits:
-                raise InputError(tuple(hits), text) from None
+            empty = [n for n in hits if not getattr(self.controls, n).value.strip()]
+            if hits:  # mark the boxes left empty among those named, else all named
+                raise InputError(tuple(empty or hits), text) from None
             raise
         self.view = view
         self.source.data = dict(view.period)
