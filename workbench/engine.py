@@ -376,40 +376,76 @@ class LossLaws:
         """
         f = np.asarray(freq, dtype=float)
         s = np.asarray(scale, dtype=float)
-        x = f / self.ref_freq
-        igse = self.igse_ref * x**self.alpha * s**self.beta
-        relax = np.zeros(np.broadcast(x, s).shape)
-        rx = self.relaxation
-        if rx is not None:
-            xc = np.asarray(x)[..., None]
-            sc = np.asarray(s)[..., None]
-            energy = (rx.k_r * np.abs(rx.slopes * xc * sc) ** rx.alpha_r * (rx.flux_pp * sc) ** rx.beta_r
-                      * (1.0 - np.exp(-rx.durations / (xc * rx.tau))) * rx.q)
-            relax = f * np.sum(energy, axis=-1)
+        u = self.unit_parts(f, thickness=thickness, resistivity=resistivity)
+        igse = u["igse"] * s**self.beta
+        relax = u["relaxation"] * s**self.relaxation_flux_exponent
         steinmetz = igse + relax
-        d = self.thickness if thickness is None else np.asarray(thickness, dtype=float)
-        rho = self.resistivity if resistivity is None else np.asarray(resistivity, dtype=float)
-        classical = None
-        if d is not None and rho is not None:
-            classical = self.classical(f, rho, d, self.rel_permeability) * s**2
+        classical = None if u["classical"] is None else u["classical"] * s**2
         total = steinmetz
         floored = np.zeros(np.shape(steinmetz), dtype=bool)
-        overridden = classical is not None and (
-            thickness is not None or resistivity is not None
-            or self.thickness != self.own_thickness or self.resistivity != self.own_resistivity)
-        if overridden and self.own_thickness is not None:
-            own = self.classical(f, self.own_resistivity, self.own_thickness, self.rel_permeability) * s**2
-            rest = steinmetz - own
-            same = (d == self.own_thickness) & (rho == self.own_resistivity)  # no override at these points
+        if u["own_classical"] is not None:
+            rest = steinmetz - u["own_classical"] * s**2
+            same = u["same"]
             floored = (rest < 0) & ~same
             total = np.where(same, steinmetz, np.maximum(rest, 0.0) + classical)
         hyst = excess = sep_total = None
         if self.hyst_ref is not None:
-            hyst = self.hyst_ref * x * s**self.beta_hyst
-            excess = self.excess_ref * (x * s) ** 1.5
+            hyst = u["hysteresis"] * s**self.beta_hyst
+            excess = u["excess"] * s**1.5
             sep_total = hyst + classical + excess if classical is not None else None
         return {"total": total, "steinmetz": steinmetz, "relaxation": relax, "classical": classical,
                 "hysteresis": hyst, "excess": excess, "separation_total": sep_total, "floored": floored}
+
+    @property
+    def relaxation_flux_exponent(self) -> float:
+        """Power of the flux scale in the relaxation part, alpha_r + beta_r [-] (0 without relaxation)."""
+        rx = self.relaxation
+        return 0.0 if rx is None else rx.alpha_r + rx.beta_r
+
+    def unit_parts(self, freq, *, thickness=None, resistivity=None) -> dict:
+        """The parts at flux scale 1, from which :meth:`parts` scales each by its power of the flux.
+
+        Parameters
+        ----------
+        freq : array_like
+            Frequencies [Hz].
+        thickness, resistivity : array_like, optional
+            Lamination thickness [m] and resistivity [ohm m] of the classical part.
+
+        Returns
+        -------
+        dict
+            ``igse``, ``relaxation``, ``classical``, ``hysteresis``, ``excess`` [W/m^3] at
+            scale 1 (flux powers beta, alpha_r + beta_r, 2, beta_h, 1.5), and for a
+            replaced classical part ``own_classical`` (the material's own, power 2) and
+            ``same`` (points where the override equals the material's); else None.
+        """
+        f = np.asarray(freq, dtype=float)
+        x = f / self.ref_freq
+        igse = self.igse_ref * x**self.alpha
+        relax = np.zeros(np.shape(x))
+        rx = self.relaxation
+        if rx is not None:
+            xc = np.asarray(x)[..., None]
+            energy = (rx.k_r * np.abs(rx.slopes * xc) ** rx.alpha_r * rx.flux_pp**rx.beta_r
+                      * (1.0 - np.exp(-rx.durations / (xc * rx.tau))) * rx.q)
+            relax = f * np.sum(energy, axis=-1)
+        d = self.thickness if thickness is None else np.asarray(thickness, dtype=float)
+        rho = self.resistivity if resistivity is None else np.asarray(resistivity, dtype=float)
+        classical = own = same = None
+        if d is not None and rho is not None:
+            classical = self.classical(f, rho, d, self.rel_permeability)
+            overridden = (thickness is not None or resistivity is not None
+                          or self.thickness != self.own_thickness or self.resistivity != self.own_resistivity)
+            if overridden and self.own_thickness is not None:
+                own = self.classical(f, self.own_resistivity, self.own_thickness, self.rel_permeability)
+                same = np.asarray((d == self.own_thickness) & (rho == self.own_resistivity))
+        hyst = excess = None
+        if self.hyst_ref is not None:
+            hyst = self.hyst_ref * x
+            excess = self.excess_ref * x**1.5
+        return {"igse": igse, "relaxation": relax, "classical": classical, "own_classical": own, "same": same,
+                "hysteresis": hyst, "excess": excess}
 
 
 def _relaxation_law(waveform: FluxWaveform, rx) -> _Relaxation | None:
@@ -990,15 +1026,25 @@ def flux_scale_at_loss(laws: LossLaws, freq, loss_density: float) -> np.ndarray:
     """
     f = _freq_array(freq)
     pv = _positive(loss_density, "loss_density", "W/m^3")
+    u = laws.unit_parts(f)
     base = laws.parts(f)["total"]
     s = (pv / base) ** (1.0 / laws.beta)
-    if laws.relaxation is None and laws.thickness == laws.own_thickness and laws.resistivity == laws.own_resistivity:
+    if laws.relaxation is None and u["own_classical"] is None:
         return s
+    gamma = laws.relaxation_flux_exponent
+
+    def total(scale):  # the law of parts(), evaluated from the unit parts: no harmonic sums here
+        st = u["igse"] * scale**laws.beta + u["relaxation"] * scale**gamma
+        if u["own_classical"] is None:
+            return st
+        replaced = np.maximum(st - u["own_classical"] * scale**2, 0.0) + u["classical"] * scale**2
+        return np.where(u["same"], st, replaced)
+
     lo = np.log(s) - 20.0
     hi = np.log(s) + 20.0
     for _ in range(80):  # bisection on log s: 40 orders of magnitude to ~1e-12 relative
         mid = 0.5 * (lo + hi)
-        above = laws.parts(f, np.exp(mid))["total"] > pv
+        above = total(np.exp(mid)) > pv
         hi = np.where(above, mid, hi)
         lo = np.where(above, lo, mid)
     return np.exp(0.5 * (lo + hi))
