@@ -187,3 +187,11 @@ def test_sweep_frequency_of_shape_equals_core_loss_sweep():
     a = sweep_frequency("mnzn-power-ferrite", "trapezoid", b_peak=0.1, duty=0.8, freqs=freqs, temperature=70)
     b = core_loss_sweep(op, "mnzn-power-ferrite", freqs, temperature=70)
     np.testing.assert_array_equal(a.total, b.total)
+
+
+def test_temperature_outside_the_data_range_is_stated():
+    low, high = (float(x) for x in DATA["mnzn-power-ferrite"]["steinmetz"]["temperature"]["valid_range"]["value"])
+    inside = core_loss(ShapeSpec("sine", 0.1, 100e3), "mnzn-power-ferrite", temperature=(low + high) / 2)
+    assert not any("extrapolated" in w and "temperature" in w for w in inside.warnings)
+    hot = core_loss(ShapeSpec("sine", 0.1, 100e3), "mnzn-power-ferrite", temperature=high + 30)
+    assert any("outside the temperature range" in w for w in hot.warnings)

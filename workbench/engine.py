@@ -280,6 +280,12 @@ def temperature_factor(material, temperature: float | None) -> tuple[float, floa
             f"no core temperature given: {name} evaluated at {used:.0f} degC, its data's reference temperature "
             f"(at 25 degC the loss would be {at25:.2g} times as high); give the temperature to evaluate it there"
         )
+    valid = getattr(coeffs, "valid_range", None)
+    if valid is not None and not valid[0] <= used <= valid[1]:
+        warnings.append(
+            f"core temperature {used:.4g} degC lies outside the temperature range of {name}'s data "
+            f"({valid[0]:g}-{valid[1]:g} degC): the temperature factor is extrapolated"
+        )
     factor = float(coeffs.factor(used))
     if not math.isfinite(factor) or factor <= 0:
         raise ValueError(f"temperature {used!r} degC gives a non-positive loss factor for {name}")

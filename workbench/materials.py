@@ -91,6 +91,9 @@ class TemperatureCoefficients:
         Linear coefficient [1/degC] (subtracted).
     ct2 : float
         Quadratic coefficient [1/degC^2].
+    valid_range : tuple of float, optional
+        Core temperatures the factor was fitted over, (low, high) [degC]; outside it
+        the factor is extrapolated (the engine says so).
 
     Notes
     -----
@@ -110,6 +113,11 @@ class TemperatureCoefficients:
     ct0: float
     ct1: float
     ct2: float
+    valid_range: tuple[float, float] | None = None
+
+    def __post_init__(self):
+        if self.valid_range is not None:
+            object.__setattr__(self, "valid_range", _as_pair(self.valid_range))
 
     def factor(self, temperature):
         """Loss multiplier at a core temperature.
@@ -457,6 +465,8 @@ def _numeric_paths(material: Material) -> list[str]:
     paths += [f"steinmetz.{f}" for f in _STEINMETZ_FIELDS + _RANGE_FIELDS]
     if material.steinmetz.temperature is not None:
         paths += [f"steinmetz.temperature.{f}" for f in _TEMPERATURE_FIELDS]
+        if material.steinmetz.temperature.valid_range is not None:
+            paths.append("steinmetz.temperature.valid_range")
     if material.separation is not None:
         paths += [f"separation.{f}" for f in _SEPARATION_FIELDS]
     if material.relaxation is not None:
@@ -653,12 +663,20 @@ def _material_from_table(where: str, name: str, table, origin: str) -> Material:
     temperature = None
     tt = _section(where, name, st, "temperature", False)
     if tt is not None:
-        _check_keys(where, name, tt, _TEMPERATURE_FIELDS, "steinmetz.temperature")
+        _check_keys(where, name, tt, (*_TEMPERATURE_FIELDS, "valid_range"), "steinmetz.temperature")
         tvals = {}
         for key in _TEMPERATURE_FIELDS:
             path = f"steinmetz.temperature.{key}"
             tvals[key], sources[path] = _entry(where, name, tt, key, path)
             _check_number(where, name, path, tvals[key])
+        if "valid_range" in tt:
+            path = "steinmetz.temperature.valid_range"
+            tvals["valid_range"], sources[path] = _entry(where, name, tt, "valid_range", path)
+            pair = tvals["valid_range"]
+            if (not isinstance(pair, list) or len(pair) != 2
+                    or any(isinstance(x, bool) or not isinstance(x, (int, float)) or not math.isfinite(x) for x in pair)
+                    or not -273.15 < pair[0] < pair[1]):
+                raise _fail(where, name, path, pair, "must be a pair [low, high] of temperatures in degC, low < high")
         temperature = TemperatureCoefficients(**tvals)
     steinmetz = SteinmetzParams(**st_values, temperature=temperature)
 
@@ -722,7 +740,8 @@ def _floats(m: Material) -> Material:
             freq_range=tuple(float(x) for x in st.freq_range),
             b_range=tuple(float(x) for x in st.b_range),
             temperature=None if tc is None else TemperatureCoefficients(
-                float(tc.ct0), float(tc.ct1), float(tc.ct2))),
+                float(tc.ct0), float(tc.ct1), float(tc.ct2),
+                None if tc.valid_range is None else tuple(float(x) for x in tc.valid_range))),
         separation=None if m.separation is None else SeparationParams(
             float(m.separation.k_hyst), float(m.separation.beta_hyst),
             float(m.separation.k_excess)),
@@ -975,6 +994,9 @@ def material_to_toml(material: Material) -> str:
         for key in _TEMPERATURE_FIELDS:
             lines.append(_toml_item(key, getattr(st.temperature, key),
                                     src[f"steinmetz.temperature.{key}"]))
+        if st.temperature.valid_range is not None:
+            lines.append(_toml_item("valid_range", tuple(st.temperature.valid_range),
+                                    src["steinmetz.temperature.valid_range"]))
     for section, fields in (("separation", _SEPARATION_FIELDS),
                             ("relaxation", _RELAXATION_FIELDS),
                             ("bias", _BIAS_FIELDS)):
