@@ -513,7 +513,8 @@ def _local(todo, task, settings, workers):
 
 def _import_dask():
     try:
-        from dask.distributed import Client, as_completed as dask_as_completed
+        from dask.distributed import Client
+        from dask.distributed import as_completed as dask_as_completed
     except ImportError:
         raise ValueError(
             f"running on a Dask cluster needs the optional 'cluster' extra: {INSTALL_HINT} "
