@@ -770,6 +770,11 @@ def thermal_operating_point(waveform, material, *, volume, ambient, cooling, win
         if h_dc:
             warnings.append("max_b_peak_t counts the AC flux only: with DC bias the DC flux adds to it, and the peak "
                             "must stay below the saturation flux density at temperature (not checked here)")
+    coeffs = getattr(getattr(mat, "steinmetz", None), "temperature", None)
+    valid = getattr(coeffs, "valid_range", None)
+    if valid is not None and limit > valid[1] and (margins or eq.temperature is None or eq.escape_temperature is not None):
+        warnings.append(f"{name}'s loss data cover {valid[0]:g}-{valid[1]:g} degC: the loss above {valid[1]:g} degC, "
+                        "on which the runaway limit and the margins rest, is extrapolated; treat them as indications")
     if pw:
         warnings.append(f"winding loss {pw:.3g} W taken as constant; copper resistance rises about 0.39 %/K "
                         "(IEC 60028 annealed copper, from memory): give the winding loss at the expected temperature")
