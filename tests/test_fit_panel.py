@@ -116,7 +116,7 @@ def test_temperature_choices_follow_the_file(tmp_path):
     path = _write(tmp_path, "temps.csv", rows, head="freq (Hz), b_peak (T), loss (W/m3), temp (C)")
     panel = FitPanel(str(path))
     assert panel.last_error is None, panel.last_error
-    assert [v for _, v in panel.controls.temperature.options] == [None, 25.0, 100.0]
+    assert [v for _, v in panel.controls.temperature.options] == ["all", 25.0, 100.0]
     assert panel.view.steinmetz.temperature is not None  # two temperatures: linear factor
     panel.controls.temperature.value = 100.0
     assert panel.view.steinmetz.k == pytest.approx(2.0, rel=1e-8)

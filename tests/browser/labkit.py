@@ -126,6 +126,26 @@ def wait_idle(server, timeout=150.0):
     raise AssertionError(f"kernel not idle after {timeout} s")
 
 
+def settle(page, server, selector: str, quiet: float = 2.0, timeout: float = 60.0):
+    """Wait until the text of ``selector`` has not changed for ``quiet`` seconds and the kernel is idle.
+
+    Key presses queue several updates; the kernel is idle for a moment between them, so one
+    idle reading does not mean the page shows the last state.
+    """
+    deadline = time.monotonic() + timeout
+    last, since = None, time.monotonic()
+    while time.monotonic() < deadline:
+        text = page.locator(selector).first.inner_text()
+        if text != last:
+            last, since = text, time.monotonic()
+        elif time.monotonic() - since >= quiet:
+            wait_idle(server)
+            if page.locator(selector).first.inner_text() == last:
+                return last
+        time.sleep(0.25)
+    raise AssertionError(f"{selector} still changing after {timeout} s")
+
+
 def launch(pw, chromium: str, *, width=1500, height=2600):
     """Browser and context with every request not to 127.0.0.1 aborted."""
     browser = pw.chromium.launch(executable_path=chromium, headless=True, args=CHROMIUM_ARGS)

@@ -21,6 +21,7 @@ from .labkit import (
     lab_server,
     launch,
     open_and_run,
+    settle,
     shutdown_kernels,
     wait_idle,
 )
@@ -131,7 +132,7 @@ def test_frequency_panel_marks_bad_input_and_hides_stale_results(page, server):
         page.wait_for_function(
             "() => { const o = document.querySelector('.fluxheat-overlay');"
             " return o !== null && o.innerText.includes('0.270 mm'); }", timeout=30_000)
-        wait_idle(server)
+        settle(page, server, ".fluxheat-readout")
         _shot(panel, "frequency_panel")
         # an invalid input: marked at its box, message beside it, results hidden
         box = _text_box(panel, "to f [Hz]")
@@ -181,7 +182,7 @@ def test_capture_panel_renders_and_responds(page, server):
         temp.press("Enter")
         page.wait_for_function("(old) => document.querySelector('.fluxheat-loss-table').innerText !== old", arg=old,
                                timeout=30_000)
-        wait_idle(server)
+        settle(page, server, ".fluxheat-loss-table")
         _shot(panel, "capture_panel")
     except BaseException:
         _fail_shot(page, "capture_panel")
@@ -204,7 +205,12 @@ def test_comparison_panel_renders_and_responds(page, server):
             handle.press("ArrowRight")
         page.wait_for_function("(old) => document.querySelector('.fluxheat-summary').innerText !== old", arg=text,
                                timeout=30_000)
-        wait_idle(server)
+        settle(page, server, ".fluxheat-summary")
+        # the table is computed at the value in the box beside the slider
+        typed = float(panel.locator(".fluxheat-field", has=page.locator(".widget-label", has_text="B_peak of loss plot"))
+                      .locator("input[type=text]").input_value())
+        header = re.search(r"loss at ([0-9.]+) mT", summary.inner_text())
+        assert header and float(header.group(1)) == pytest.approx(typed * 1e3, rel=5e-3), (typed, header)
         _shot(panel, "comparison_panel")
     except BaseException:
         _fail_shot(page, "comparison_panel")
@@ -231,7 +237,7 @@ def test_fit_panel_renders_and_responds(page, server):
         model.select_option("steinmetz")
         page.wait_for_function("(old) => document.querySelector('.fluxheat-fit-summary').innerText !== old",
                                arg=before, timeout=30_000)
-        wait_idle(server)
+        settle(page, server, ".fluxheat-fit-summary")
         _shot(panel, "fit_panel")
     except BaseException:
         _fail_shot(page, "fit_panel")

@@ -337,6 +337,11 @@ _WIDE = {"style": {"description_width": "170px"}, "layout": widgets.Layout(width
 _EMPTY_POINTS = {k: [] for k in ("row", "freq", "b_peak", "loss", "fitted", "rel_error", "rel_error_pct", "energy",
                                  "shape", "level", "colour")}
 _EMPTY_LINES = {"xs": [], "ys": [], "level": [], "colour": []}
+_ALL = "all"  # dropdown value for "no choice" (None would show an empty box)
+
+
+def _none(value):
+    return None if value == _ALL else value
 
 
 class FitPanel(PanelBase):
@@ -379,10 +384,11 @@ class FitPanel(PanelBase):
                               continuous_update=False, style={"description_width": "170px"},
                               layout=widgets.Layout(width="720px"))
         c.model = widgets.Dropdown(options=list(FIT_MODELS), value=model, description="model", **_WIDE)
-        c.flux_kind = widgets.Dropdown(options=[("from the header", None), ("peak", "peak"), ("peak-to-peak", "pp")],
-                                       value=None, description="flux column is", **_WIDE)
+        # option values are strings: a dropdown whose value is None shows an empty box in the browser
+        c.flux_kind = widgets.Dropdown(options=[("from the header", _ALL), ("peak", "peak"), ("peak-to-peak", "pp")],
+                                       value=_ALL, description="flux column is", **_WIDE)
         c.density = QuantityText("", unit="kg/m3", name="density", description="density for W/kg tables [kg/m³]")
-        c.temperature = widgets.Dropdown(options=[("all rows", None)], value=None, description="temperature [°C]",
+        c.temperature = widgets.Dropdown(options=[("all rows", _ALL)], value=_ALL, description="temperature [°C]",
                                          **_WIDE)
         c.tolerance = QuantityText("25%", unit="", name="tolerance", description="max error of one set [%]")
         c.split = widgets.Checkbox(value=True, description="split into frequency bands when needed", indent=False)
@@ -493,8 +499,8 @@ class FitPanel(PanelBase):
         c = self.controls
         density = self._read("density", lambda: c.density.si() if c.density.value.strip() else None)
         try:
-            return FitSettings(path=c.path.value.strip(), model=c.model.value, flux_kind=c.flux_kind.value,
-                               density=density, temperature=c.temperature.value,
+            return FitSettings(path=c.path.value.strip(), model=c.model.value, flux_kind=_none(c.flux_kind.value),
+                               density=density, temperature=_none(c.temperature.value),
                                tolerance=self._read("tolerance", c.tolerance.si), split=bool(c.split.value),
                                band=c.band.value, thickness=self._read("thickness", c.thickness.si),
                                resistivity=self._read("resistivity", c.resistivity.si),
@@ -524,12 +530,12 @@ class FitPanel(PanelBase):
         if path == self._temps_for:
             return
         density = c.density.si() if c.density.value.strip() else None
-        temps = read_loss_table(path, flux_kind=c.flux_kind.value, density=density).temperatures
+        temps = read_loss_table(path, flux_kind=_none(c.flux_kind.value), density=density).temperatures
         self._temps_for = path
-        options = [("all rows", None)] + [(f"{t:g}", float(t)) for t in temps]
+        options = [("all rows", _ALL)] + [(f"{t:g}", float(t)) for t in temps]
         with self.hold():
             c.temperature.options = options
-            c.temperature.value = None
+            c.temperature.value = _ALL
 
     def _refresh(self):
         try:
