@@ -17,9 +17,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from workbench.capture.flux import flux_density
-from workbench.capture.steady_state import checked_record, fold_periods
-
 __all__ = [
     "FluxWaveform",
     "Spectrum",
@@ -990,6 +987,8 @@ def from_samples(t, b, *, freq: float | None = None, samples: int | None = None)
     samples : int, optional
         Samples per period of the averaged waveform (only with ``freq``).
     """
+    from workbench.capture.steady_state import checked_record, fold_periods  # record handling, loaded on use
+
     t, b, steps = checked_record(t, b, "b", "from_samples", 2)
     if freq is None:
         period = (t[-1] - t[0]) + steps[-1]
@@ -1023,6 +1022,8 @@ def integrate_voltage(t, v, *, turns: float, area: float) -> np.ndarray:
     Faraday's law v = N A_e dB/dt, integrated by
     :func:`workbench.capture.flux.flux_density` (trapezoidal rule, mean voltage removed).
     """
+    from workbench.capture.flux import flux_density  # record handling, loaded on use
+
     return flux_density(np.asarray(t, dtype=float), v, turns=turns, area=area)
 
 
@@ -1051,6 +1052,9 @@ def from_voltage(t, v, *, turns: float, area: float, freq: float | None = None, 
        of the magnetic properties of magnetic powder cores and soft ferrites*
        (flux from the induced voltage of a sense winding).
     """
+    from workbench.capture.flux import flux_density
+    from workbench.capture.steady_state import checked_record
+
     t, v, steps = checked_record(t, v, "v", "from_voltage", 3)
     turns = _as_positive(turns, "turns")
     area = _as_positive(area, "area")

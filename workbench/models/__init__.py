@@ -1,5 +1,4 @@
 """Pure loss formulas: loss per unit volume [W/m^3], no I/O, no plotting."""
-from workbench.models.batch import batch_thresholds, igse_batch
 from workbench.models.loops import LoopSet, decompose_loops, loop_abs_dbdt_integrals, loop_path_integrals
 from workbench.models.separation import (
     EXCESS_SINE_CONSTANT,
@@ -60,3 +59,12 @@ __all__ = [
     "steinmetz",
     "steinmetz_temperature_factor",
 ]
+
+
+def __getattr__(name: str):
+    # the 2-D batch kernel loads on first use: most users of the models never need it
+    if name in ("batch_thresholds", "igse_batch"):
+        from workbench.models import batch
+
+        return getattr(batch, name)
+    raise AttributeError(f"module 'workbench.models' has no attribute {name!r}")
