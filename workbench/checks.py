@@ -179,6 +179,9 @@ def finite_result(value, what: str, **inputs):
     ValueError
         ``"{what} is not finite (overflow) for freq=1e+308, ...; the inputs are out of range"``.
     """
+    if isinstance(value, float):  # the common scalar case, without numpy overhead
+        if math.isfinite(value):
+            return value
     arr = np.asarray(value)
     if arr.dtype.kind in "fc" and not np.all(np.isfinite(arr)):
         shown = ", ".join(f"{k}={_short(v)}" for k, v in inputs.items())

@@ -92,7 +92,8 @@ def _single_swing(waveform: FluxWaveform):
     period, flat stretches allowed; otherwise None."""
     d = waveform.segment_increments
     rising = d[d != 0] > 0
-    if rising.size < 2 or np.count_nonzero(rising != np.roll(rising, 1)) != 2:
+    # direction changes around the period (the wrap-around pair counted too), without np.roll's copy
+    if rising.size < 2 or np.count_nonzero(rising[1:] != rising[:-1]) + int(rising[0] != rising[-1]) != 2:
         return None
     return int(np.argmax(waveform.b)), int(np.argmin(waveform.b))
 
