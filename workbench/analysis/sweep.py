@@ -71,12 +71,11 @@ def _crossover(laws: LossLaws, include_excess: bool, f_range) -> CrossoverResult
     hyst_name = "hysteresis loss" if use_sep else "the Steinmetz loss (no separation set, taken as hysteresis-like)"
 
     def hyst(f):
-        p = laws.parts(f)
-        return p["hysteresis"] if use_sep else p["total"]
+        return laws.hyst_ref * (np.asarray(f, dtype=float) / laws.ref_freq) if use_sep else laws.parts(f)["total"]
 
-    def eddy(f):
-        p = laws.parts(f)
-        return p["classical"] + p["excess"] if with_excess else p["classical"]
+    def eddy(f):  # only the parts needed, each from the laws (the classical harmonic sum is the cost)
+        e = laws.classical(f, laws.resistivity, laws.thickness, laws.rel_permeability)
+        return e + laws.excess_ref * (np.asarray(f, dtype=float) / laws.ref_freq) ** 1.5 if with_excess else e
 
     closed = laws.rel_permeability is None and use_sep and not with_excess
     if closed:
