@@ -980,6 +980,12 @@ def core_loss_sweep(waveform, material, freqs, *, temperature=None, thickness=No
     -------
     LossSweep
         At ``waveform.freq`` the values equal :func:`core_loss` to rounding.
+
+    Examples
+    --------
+    >>> sw = core_loss_sweep(ShapeSpec("triangle", 0.1, 1.0, 0.3), "nanocrystalline", [10e3, 100e3])
+    >>> [round(x) for x in sw.loss_w_m3]
+    [2064, 92004]
     """
     f = _freq_array(freqs)
     c = Conditions(temperature, thickness, resistivity, skin_effect, minor_loops, threshold, h_dc)

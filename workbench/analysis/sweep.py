@@ -290,6 +290,12 @@ def sweep_frequency(material, shape="sine", *, b_peak: float | None = None, duty
     Returns
     -------
     FrequencySweep
+
+    Examples
+    --------
+    >>> s = sweep_frequency("M400-50A", "sine", b_peak=1.5, freqs=[50, 400])
+    >>> [round(x) for x in s.total], s.loss_model, round(s.crossover.freq, 1)
+    ([27190, 471467], 'iGSE', 132.9)
     """
     f = DEFAULT_FREQS if freqs is None else freqs
     wave = _shape(shape, b_peak, duty)
