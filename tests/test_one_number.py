@@ -67,6 +67,13 @@ def test_shape_operating_point_is_one_number_on_every_path(capsys, material, sha
     for path, value in values.items():
         assert value == pytest.approx(reference, rel=RTOL), path
 
+    # the thermal command reports the loss at the temperature it finds: the engine at that temperature
+    th = _cli_json(capsys, ["thermal", "--material", material, "--freq", str(freq), "--volume", "10cm3",
+                            "--rth", "5", "--ambient", "40"] + common)
+    if th["temperature_c"] is not None:
+        at = core_loss(spec, material, temperature=th["temperature_c"]).total
+        assert th["loss_w_m3"] == pytest.approx(at, rel=RTOL), "cli thermal"
+
 
 def _flux_capture(path, freq=100e3, periods=6, samples=400):
     """A trapezoidal flux capture (invented for this test): time and B columns."""
