@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import argparse
 
-__all__ = ["add_reader_arguments", "reader_options_from_args"]
+__all__ = ["add_reader_arguments", "parse_channel_map", "reader_options_from_args"]
 
 _DELIMITERS = {"comma": ",", "semicolon": ";", "tab": "\t", "space": " "}
 _DECIMALS = {"point": ".", "comma": ","}
@@ -46,7 +46,8 @@ def _pairs(values, flag: str) -> dict[str, str]:
     for text in values or ():
         key, sep, value = str(text).partition("=")
         if not sep or not key.strip() or not value.strip():
-            raise ValueError(f"{flag} {text!r}: expected NAME=VALUE, e.g. {flag} CH2=current")
+            example = f"{flag} CH2=current" if flag.startswith("--") else "CH2=current"
+            raise ValueError(f"{flag} {text!r}: expected NAME=VALUE, e.g. {example}")
         key = key.strip()
         if key in out:
             raise ValueError(f"{flag}: {key!r} given twice")
@@ -56,6 +57,33 @@ def _pairs(values, flag: str) -> dict[str, str]:
 
 def _index_or_name(text: str):
     return int(text) if text.isdigit() else text
+
+
+def parse_channel_map(items, name: str = "--channel") -> dict:
+    """What each column holds, from ``NAME=MEANING`` texts (the ``--channel`` values).
+
+    Parameters
+    ----------
+    items : iterable of str
+        One ``NAME=MEANING`` pair each: NAME a header name or a 0-based column index,
+        MEANING a reader meaning (``voltage``, ``sense voltage``, ``current``,
+        ``flux density``, ``flux``, ``time``, ``ignore``); the reader checks the meanings.
+    name : str
+        What the pairs were given as, for messages (``"--channel"``, a panel's box name).
+
+    Returns
+    -------
+    dict
+        Column (int for an index, else the name) -> meaning, the ``channels`` argument
+        of :func:`workbench.capture.read_capture`.
+
+    Raises
+    ------
+    ValueError
+        For a pair without ``=``, an empty side, or a column given twice (naming ``name``
+        and the text).
+    """
+    return {_index_or_name(k): v for k, v in _pairs(items, name).items()}
 
 
 def reader_options_from_args(args: argparse.Namespace) -> dict:
@@ -87,9 +115,9 @@ def reader_options_from_args(args: argparse.Namespace) -> dict:
         out["time_column"] = _index_or_name(args.time_column.strip())
     if getattr(args, "time_unit", None):
         out["time_unit"] = args.time_unit
-    channels = _pairs(getattr(args, "channel", None), "--channel")
+    channels = parse_channel_map(getattr(args, "channel", None) or ())
     if channels:
-        out["channels"] = {_index_or_name(k): v for k, v in channels.items()}
+        out["channels"] = channels
     columns = _pairs(getattr(args, "column", None), "--column")
     if columns:
         out["columns"] = {k: _index_or_name(v) for k, v in columns.items()}
