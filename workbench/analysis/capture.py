@@ -627,11 +627,11 @@ def _checked_channels(t, chans, used, source) -> None:
         y = chans[name]
         if y.size != n:
             raise ValueError(f"{source}: channel {name!r} has {y.size} samples, time has {n}")
-        bad = ~np.isfinite(y)
-        if bad.any():
-            j = int(np.argmax(bad))
+        lo, hi = float(np.min(y)), float(np.max(y))  # a NaN or an infinity shows in one of them
+        if not (np.isfinite(lo) and np.isfinite(hi)):
+            j = int(np.argmax(~np.isfinite(y)))
             raise ValueError(f"{source}: channel {name!r} has a non-finite value at sample {j + 1}: {y[j]!r}")
-        if np.ptp(y) == 0:
+        if hi == lo:
             raise ValueError(f"{source}: channel {name!r} is constant ({y[0]!r}): no waveform")
 
 
@@ -749,8 +749,10 @@ def _fold_flux(tg, rows, plan: _Plan, s: _Settings, period, source) -> _Folded:
     samples = min(max(16, round(period / step)), MAX_SAMPLES_PER_PERIOD)
     signal = rows[plan.flux_channel] if plan.kind == "flux" else _core_voltage(rows, plan, s)
     try:
-        fold = fold_periods(tg, signal, period, samples=samples)
-        current = fold_periods(tg, rows[plan.current], period, samples=samples).mean[0] if plan.current else None
+        # tg comes from uniform_grid: within half a step of an even grid, no need to check it again
+        fold = fold_periods(tg, signal, period, samples=samples, even=True)
+        current = (fold_periods(tg, rows[plan.current], period, samples=samples, even=True).mean[0]
+                   if plan.current else None)
     except ValueError as exc:
         raise ValueError(f"{source}: {exc}") from None
     if plan.kind == "flux":

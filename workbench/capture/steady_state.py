@@ -68,6 +68,10 @@ SUBHARMONIC_MULTIPLES = (2, 3)
 HARMONIC_SNR = 4.0
 #: Noise allowed on the slope after the low-pass, as a fraction of the RMS slope of the signal.
 SLOPE_NOISE_SHARE = 0.1
+#: Phase bins per period of the repetition check on periods of at least twice as many samples.
+REPETITION_BINS = 1024
+#: Most bins (or samples, for short periods) the repetition check reads: the leading part of a longer record.
+REPETITION_MAX_POINTS = 1 << 20
 #: How often the fine search may move its window to follow a minimum on the window's edge.
 MAX_WINDOW_SHIFTS = 64
 
@@ -510,22 +514,68 @@ PHASE_SEGMENTS = 64
 #: Harmonics the least-squares finish looks at, and the share of the strongest one a harmonic needs.
 PHASE_HARMONICS = 8
 PHASE_MIN_SHARE = 0.05
+#: The least-squares finish runs on the block means of the coarse step when a period spans this many blocks.
+PHASE_MIN_BLOCKS = 64
+#: Columns of the segment matrix read at a time by the least-squares finish.
+PHASE_COLUMNS = 1 << 12
 
 
-def _phase_refine(y: np.ndarray, p: float) -> float:
+def _segment_amplitudes(y: np.ndarray, starts: np.ndarray, length: int, w: float, harmonics) -> np.ndarray:
+    """c[s, j] = sum_k (y[a_s + k] - mean_s) exp(-i h_j w k), k < length: every harmonic in one pass.
+
+    The segments are read a block of ``PHASE_COLUMNS`` columns at a time (a
+    cache-sized copy of that block of every segment) against a small basis of
+    cos and sin of all the harmonics and a column of ones (for the segment
+    means); exp(-i h w k) comes from powers of exp(-i w k), one complex
+    exponential per column.
+    """
+    hs = np.asarray(list(harmonics), dtype=np.intp)
+    nh = hs.size
+    top = int(hs.max())
+    windows = sliding_window_view(y, length)
+    acc = np.zeros((starts.size, 2 * nh + 1))
+    basis_sum = np.zeros(nh, dtype=complex)
+    basis = np.empty((min(length, PHASE_COLUMNS), 2 * nh + 1))
+    basis[:, -1] = 1.0
+    for k0 in range(0, length, PHASE_COLUMNS):
+        k1 = min(length, k0 + PHASE_COLUMNS)
+        b = basis[: k1 - k0]
+        e1 = np.exp(-1j * w * np.arange(k0, k1, dtype=float))
+        e = e1.copy()
+        j = 0
+        for h in range(1, top + 1):
+            if h > 1:
+                e *= e1
+            if j < nh and hs[j] == h:
+                b[:, j] = e.real
+                b[:, nh + j] = e.imag
+                basis_sum[j] += e.sum()
+                j += 1
+        acc += windows[starts, k0:k1] @ b
+    means = acc[:, -1] / length
+    return acc[:, :nh] + 1j * acc[:, nh:2 * nh] - means[:, None] * basis_sum[None, :]
+
+
+def _phase_refine(y: np.ndarray, p: float, limit: float = 1.0) -> float:
     """Period [samples] refined by a straight-line fit to the phase of the harmonics over the record.
 
     ``p`` is the period found by the lag search. The record is cut into M
-    segments of q whole periods each (L = round(q p) samples); segment s starts
-    at sample s L. For harmonic h the amplitude per segment is
-    :math:`c_{s} = \\sum_k y_{sL+k} e^{-2\\pi i h (sL+k)/p}` (two real
-    matrix-vector products on a view of the record, nothing copied); a period
-    off by a fraction :math:`\\epsilon` turns the phase of :math:`c_s` by
-    :math:`-2\\pi h \\epsilon L s / p` per segment. The unwrapped phases get a
-    least-squares line; its slopes, weighted by :math:`h^2 |c_h|^2`, give
-    :math:`\\epsilon`. Two passes; the estimate is kept when the correction stays
-    within one sample per period (more than the lag search can be off),
-    otherwise ``p`` is returned.
+    segments of q periods each, of L = round(q p) samples; segment s starts at
+    sample :math:`a_s = \\mathrm{round}(s q p)`, so that every segment starts at
+    the same point of the waveform to within half a sample. For harmonic h the
+    amplitude per segment is
+    :math:`c_{s} = \\sum_{k<L} y_{a_s+k} e^{-2\\pi i h (a_s+k)/p}` (all harmonics in
+    one pass over the record, :func:`_segment_amplitudes`); a period off by a
+    fraction :math:`\\epsilon` turns the phase of :math:`c_s` by
+    :math:`-2\\pi h \\epsilon a_s / p`. A least-squares line through the
+    unwrapped phases against :math:`a_s` gives, per harmonic, the frequency
+    correction; the corrections are combined with weights :math:`h^2 |c_h|^2`.
+    Because the segments start in step with the period, what leaks into
+    :math:`c_s` from the other harmonics (a segment is not exactly whole
+    periods) is the same in every segment and does not tilt the line. Two
+    passes; the estimate is kept when the correction stays within ``limit``
+    samples per period (one sample of the full record: more than the lag search
+    can be off), otherwise ``p`` is returned.
     """
     n = y.size
     n_periods = int(np.floor(n / p))
@@ -533,29 +583,25 @@ def _phase_refine(y: np.ndarray, p: float) -> float:
         return p
     segments = min(PHASE_SEGMENTS, n_periods)
     q = n_periods // segments
-    harmonics = range(1, PHASE_HARMONICS + 1)
+    harmonics = list(range(1, PHASE_HARMONICS + 1))
     for _ in range(2):
-        length = round(q * p)
-        if length < 4 or segments * length > n:
+        starts = np.round(np.arange(segments) * (q * p)).astype(np.intp)
+        length = min(round(q * p), n - int(starts[-1]))
+        if length < 4:
             return p
-        rows = y[: segments * length].reshape(segments, length)
-        k = np.arange(length, dtype=float)
-        means = rows.mean(axis=1)
-        slopes, weights = [], []
-        used = []
-        for h in harmonics:
-            w = 2.0 * np.pi * h / p
-            re = rows @ np.cos(w * k) - means * np.sum(np.cos(w * k))
-            im = -(rows @ np.sin(w * k)) + means * np.sum(np.sin(w * k))
+        w = 2.0 * np.pi / p
+        amps = _segment_amplitudes(y, starts, length, w, harmonics)
+        x = starts.astype(float)
+        slopes, weights, used = [], [], []
+        for j, h in enumerate(harmonics):
             # phase of each segment relative to one common time origin
-            c = (re + 1j * im) * np.exp(-1j * w * length * np.arange(segments))
+            c = amps[:, j] * np.exp(-1j * w * h * x)
             power = float(np.mean(np.abs(c) ** 2))
             if power <= 0:
                 continue
             phi = np.unwrap(np.angle(c))
-            s = np.arange(segments, dtype=float)
-            slope = float(np.polyfit(s, phi, 1)[0]) if segments > 1 else 0.0
-            slopes.append(slope / (2.0 * np.pi * h))  # cycles of the fundamental per segment
+            slope = float(np.polyfit(x, phi, 1)[0]) if segments > 1 else 0.0
+            slopes.append(slope / (2.0 * np.pi * h))  # cycles of the fundamental per sample
             weights.append(h * h * power)
             used.append(h)
         if not weights:
@@ -564,9 +610,9 @@ def _phase_refine(y: np.ndarray, p: float) -> float:
         keep = weights >= PHASE_MIN_SHARE * weights.max()
         harmonics = [h for h, k in zip(used, keep) if k]  # the second pass reads only these
         drift = float(np.sum(np.asarray(slopes)[keep] * weights[keep]) / np.sum(weights[keep]))
-        # drift cycles per segment of L samples: the frequency in cycles per sample is 1/p + drift/L
-        p_new = 1.0 / (1.0 / p + drift / length)
-        if not np.isfinite(p_new) or abs(p_new - p) > 1.0:
+        # the frequency in cycles per sample is 1/p + drift
+        p_new = 1.0 / (1.0 / p + drift)
+        if not np.isfinite(p_new) or abs(p_new - p) > limit:
             return p  # more than the lag search can be off: the phases did not follow one tone
         p = p_new
     return p
@@ -607,7 +653,7 @@ def detect_period(t, y, *, noise: float = 0.0) -> PeriodEstimate:
     least 32 blocks; otherwise the leading 2^17 D' samples are used at a finer
     D' (one sample when the blocks lost the signal, since a period under about
     two blocks aliases to a false long one). The full record is read about
-    twice (block means, a sparse noise estimate) and never copied.
+    once (block means; more only for periods of under 64 blocks) and never copied.
 
     1. Coarse estimate: the unbiased autocorrelation
        :math:`r(m) = \\frac{1}{N-m}\\sum_i z_i z_{i+m}` by FFT [1]_; beyond its
@@ -633,14 +679,18 @@ def detect_period(t, y, *, noise: float = 0.0) -> PeriodEstimate:
        sums of step 1, and for the interval finally chosen from direct sums.
        T is the lag / m: the error of one lag is spread over m periods.
     3. Least-squares finish on the whole record (:func:`_phase_refine`): the
-       record is cut into segments of whole periods, the complex amplitude of
-       each strong harmonic h is taken per segment at the estimated frequency,
-       and the frequency correction is the slope of a straight line fitted to
-       the segment phases, :math:`\\delta f = \\frac{1}{2\\pi h}\\,d\\varphi/dt`
+       record is cut into segments starting one or more periods apart, the
+       complex amplitude of each strong harmonic h is taken per segment at the
+       estimated frequency, and the frequency correction is the slope of a
+       straight line fitted to the segment phases,
+       :math:`\\delta f = \\frac{1}{2\\pi h}\\,d\\varphi/dt`
        (the least-squares frequency of a tone [4]_, combined over harmonics with
-       weights :math:`h^2 |c_h|^2`). Quantisation of the record, which the
-       mismatch of step 2 would read as noise, averages out here: an 8-bit
-       record of a sine reaches about 1e-7.
+       weights :math:`h^2 |c_h|^2`). When a period spans at least 64 of the
+       block means of the coarse step, the fit runs on those (a block of under
+       1/64 period keeps harmonic 8 to within 3 % and the phase progression
+       exactly), otherwise on the record; either way one pass per refinement.
+       Quantisation of the record, which the mismatch of step 2 would read as
+       noise, averages out here: an 8-bit record of a sine reaches about 1e-7.
 
     References
     ----------
@@ -666,7 +716,15 @@ def detect_period(t, y, *, noise: float = 0.0) -> PeriodEstimate:
     noise_var = noise**2
     coarse = _choose_coarse(y, z, factor, noise_var)
     lag, m = _refine(coarse, noise_var / coarse.factor)
-    period = _phase_refine(y, lag * coarse.factor) * step
+    p = lag * coarse.factor  # [samples]
+    if factor > 1 and p >= PHASE_MIN_BLOCKS * factor:
+        # the block means of the whole record carry the harmonics that are fitted
+        # (a block of at most 1/64 period attenuates harmonic 8 by under 3 %, and
+        # leaves the phase progression from one segment to the next as it is)
+        p = _phase_refine(z, p / factor, limit=1.0 / factor) * factor
+    else:
+        p = _phase_refine(y, p)
+    period = p * step
     return PeriodEstimate(period=period, freq=1.0 / period, n_periods=(n * step) / period,
                           correlation=float(coarse.correlation), multiple=m)
 
@@ -757,7 +815,8 @@ def _fold_even(y: np.ndarray, p: float, n_periods: int, samples: int):
     return mean, float(np.sqrt(np.mean(res * res)))
 
 
-def fold_periods(t, channels, period: float, *, samples: int | None = None) -> FoldedPeriod:
+def fold_periods(t, channels, period: float, *, samples: int | None = None,
+                 even: bool | None = None) -> FoldedPeriod:
     """Average the whole periods of one or more channels onto one period.
 
     Parameters
@@ -771,6 +830,10 @@ def fold_periods(t, channels, period: float, *, samples: int | None = None) -> F
     samples : int, optional
         Samples per averaged period; default the record's own resolution
         ``round(period / step)``.
+    even : bool, optional
+        True when ``t`` is known to lie within half a step of an even grid (as
+        :func:`uniform_grid` returns it): the check, one pass over ``t``, is
+        skipped. By default the stamps are checked.
 
     Returns
     -------
@@ -827,7 +890,8 @@ def fold_periods(t, channels, period: float, *, samples: int | None = None) -> F
     if n_periods < 1:
         raise ValueError(f"the record spans {span:.6g} s, less than one period of {period:.6g} s")
     phase = np.arange(samples) * (period / samples)
-    even = np.isfinite(step) and step > 0 and _grid_deviation(t, step) <= 0.5 * step
+    if even is None:
+        even = bool(np.isfinite(step) and step > 0 and _grid_deviation(t, step) <= 0.5 * step)
     means, spreads = [], []
     for row in y:
         if even:
@@ -869,6 +933,18 @@ class Repetition:
     periods: int
 
 
+def _phase_bins(y: np.ndarray, p: float, bins: int, periods: int) -> np.ndarray:
+    """Means of y over ``bins`` equal phase intervals of each of the first ``periods`` periods of p samples.
+
+    Interval r of period j holds the samples from round(j p + r p / bins) up to
+    the next edge (half a sample of rounding at each edge); one pass over that
+    part of the record (``np.add.reduceat``), shape (periods, bins).
+    """
+    edges = np.floor(np.arange(periods * bins + 1) * (p / bins) + 0.5).astype(np.intp)
+    sums = np.add.reduceat(y[: edges[-1]], edges[:-1])
+    return (sums / np.diff(edges)).reshape(periods, bins)
+
+
 def repetition(t, y, period: float, *, samples: int | None = None) -> Repetition:
     """Check whether a record repeats only every 2 or 3 detected periods (a subharmonic).
 
@@ -881,7 +957,8 @@ def repetition(t, y, period: float, *, samples: int | None = None) -> Repetition
     period : float
         Detected period T [s].
     samples : int, optional
-        Samples per period T of the folds (default the record's resolution).
+        Points per period T of the folds (default the record's resolution; at
+        most ``REPETITION_BINS``, 1024, on a period of 2048 samples or more).
 
     Returns
     -------
@@ -898,13 +975,56 @@ def repetition(t, y, period: float, *, samples: int | None = None) -> Repetition
     (10 % of the flux at half the frequency: 5 % of the swing is lost).
     Noise allows :math:`4\\,s\\sqrt{2/J_k}` with s the fold's period-to-period
     spread and :math:`J_k` the whole periods of k T.
+
+    A subharmonic is slow, so a period of at least 2 R samples (R =
+    ``REPETITION_BINS``) is read as R phase bins: the mean of the samples in
+    each R-th of every period (edges rounded to the nearest sample; one pass,
+    no interpolation, so a steep edge falls into the same bins in every period
+    and cannot fake a difference between them), and the folds are means of
+    those rows. Shorter periods are folded by :func:`fold_periods` at the given
+    resolution. Either way at most ``REPETITION_MAX_POINTS`` (2^20) bins or
+    samples are read, the leading part of a longer record (still at least 512
+    periods), so the check costs a bounded time and memory on a huge record.
+    Bin means average the noise as well, so change and allowance stay on one
+    footing.
     """
     t = np.asarray(t, dtype=float).ravel()
     y = np.asarray(y, dtype=float).ravel()
+    if t.size != y.size:
+        raise ValueError(f"t and y must have the same length, got {t.size} and {y.size}")
     step = uniform_step(t)
-    if samples is None:
-        samples = max(16, round(period / step))
+    period = float(period)
+    if not np.isfinite(period) or period <= 0:
+        raise ValueError(f"period must be finite and positive, got {period!r}")
+    p = period / step  # [samples]
+    samples = max(16, round(p) if samples is None else int(samples))
     best = Repetition(1, 0.0, 0.0, 0)
+    if p >= 2 * REPETITION_BINS:
+        bins = min(samples, REPETITION_BINS)
+        whole = int((y.size - 0.5) // p)
+        periods = min(whole, REPETITION_MAX_POINTS // bins)
+        if periods < 2:
+            return best
+        rows = _phase_bins(y, p, bins, periods)
+        for k in SUBHARMONIC_MULTIPLES:
+            jk = periods // k
+            if jk < 1:
+                continue
+            folds = rows[: jk * k].reshape(jk, k * bins)
+            mean = folds.mean(axis=0)
+            parts = mean.reshape(k, bins)
+            avg = parts.mean(axis=0)
+            pp = float(np.ptp(avg))
+            if pp <= 0:
+                continue
+            change = float(np.max(np.abs(parts - avg))) / pp
+            rms = float(np.sqrt(np.mean((folds - mean) ** 2))) if jk > 1 else 0.0
+            allowance = 4.0 * rms / pp * np.sqrt(2.0 / jk)
+            if change - allowance > best.change - best.allowance:
+                best = Repetition(k, change, allowance, jk)
+        return best
+    used = min(y.size, REPETITION_MAX_POINTS)
+    t, y = t[:used], y[:used]
     for k in SUBHARMONIC_MULTIPLES:
         if (t[-1] - t[0]) + step < k * period:
             continue
