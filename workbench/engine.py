@@ -86,16 +86,7 @@ class BareSteinmetz:
 
     def __post_init__(self):
         for name in ("k", "alpha", "beta"):
-            value = getattr(self, name)
-            if isinstance(value, bool):
-                raise ValueError(f"Steinmetz {name} must be a number, got {value!r}")
-            try:
-                x = float(value)
-            except (TypeError, ValueError):
-                raise ValueError(f"Steinmetz {name} must be a number, got {value!r}") from None
-            if not math.isfinite(x) or x <= 0:
-                raise ValueError(f"Steinmetz {name} must be finite and positive, got {value!r}")
-            object.__setattr__(self, name, x)
+            object.__setattr__(self, name, positive_number(getattr(self, name), f"Steinmetz {name}"))
         if not 0.5 <= self.alpha <= 3.5:
             raise ValueError(f"Steinmetz alpha = {self.alpha!r} is implausible (expected 1 to 3)")
         if not 1.0 <= self.beta <= 4.5:

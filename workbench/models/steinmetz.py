@@ -65,10 +65,8 @@ def steinmetz(freq, b_peak, k, alpha, beta):
        pp. 3-64 (the power law in B); the frequency exponent is the common
        empirical extension used for ferrites.
     """
-    f = np.asarray(freq, dtype=float)
+    f = positive_array(freq, "freq")
     b = np.asarray(b_peak, dtype=float)
-    if not np.all(np.isfinite(f)) or np.any(f <= 0):
-        raise ValueError(f"freq must be finite and positive, got {freq!r}")
     if not np.all(np.isfinite(b)) or np.any(b < 0):
         raise ValueError(f"b_peak must be finite and non-negative, got {b_peak!r}")
     _check_steinmetz(k, alpha, beta)
@@ -474,10 +472,7 @@ def i2gse(waveform: FluxWaveform, k, alpha, beta, relaxation, *, minor_loops: bo
             )
         values[name] = getattr(relaxation, name)
     for name in _RELAXATION_FIELDS:
-        value = values[name]
-        if isinstance(value, bool) or not isinstance(value, (int, float, np.floating, np.integer)) \
-                or not np.isfinite(value) or value <= 0:
-            raise ValueError(f"{name} must be finite and positive, got {value!r}")
+        positive_array(values[name], name)
     q_r = values["q_r"]
     if q_r is not None and (isinstance(q_r, bool) or not np.isfinite(q_r) or q_r < 0):
         raise ValueError(f"q_r must be finite and non-negative, got {q_r!r}")
