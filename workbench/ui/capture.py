@@ -20,7 +20,16 @@ from workbench.report.numbers import eng_column
 from workbench.report.plotting import apply_axis_format, hover_formatter
 from workbench.ui.base import PanelBase
 from workbench.ui.controls import ExportBar, QuantityText, caution_widget, heading
-from workbench.ui.state import CaptureSettings, CaptureView, capture_presets, capture_view
+from workbench.ui.state import (
+    READER_DECIMALS,
+    READER_DELIMITERS,
+    CaptureSettings,
+    CaptureView,
+    InputError,
+    ReaderSettings,
+    capture_presets,
+    capture_view,
+)
 from workbench.ui.style import ROLE_COLOURS, new_figure, style_figure
 
 __all__ = ["CapturePanel", "demo_capture_folder", "demo_captures"]
@@ -28,6 +37,12 @@ __all__ = ["CapturePanel", "demo_capture_folder", "demo_captures"]
 _NO_MODEL = "(no model)"
 _UPLOAD_PREFIX = "uploaded: "
 _BOX = {"style": {"description_width": "250px"}, "layout": widgets.Layout(width="430px")}
+#: Reads kept in memory (one per capture and reader options; the oldest is dropped).
+_CACHE_SIZE = 4
+#: Options of the analysis named in its messages -> the control that sets it.
+_OPTION_CONTROLS = (("turns", "--turns"), ("sense_turns", "--sense-turns"), ("area", "--area"), ("volume", "--volume"),
+                    ("path_length", "--path-length"), ("temperature", "--temperature"), ("deskew", "--deskew"),
+                    ("winding_resistance", "--winding-resistance"), ("h_dc", "--h-dc"))
 
 
 def demo_capture_folder() -> Path:
@@ -50,19 +65,27 @@ class CapturePanel(PanelBase):
     ----------
     capture : str, optional
         File name of a bundled demo capture (see :func:`demo_captures`) to load at start;
-        default the two-winding demo (it has a B-H loop and a measured loss). Its ``analyse with`` line fills the geometry boxes.
+        default the two-winding demo (it has a B-H loop and a measured loss). Its ``analyse with`` line fills the
+        geometry boxes (so does an uploaded file's, when it has one).
     turns, sense_turns, area, volume, path_length : str, optional
         Geometry as typed (``"20"``, ``"60 mm2"``, ``"4.2 cm3"``, ``"70 mm"``); given
         values override the capture's suggestions.
     material : str, optional
         Library material for the prediction.
+    deskew, winding_resistance, h_dc : str, optional
+        Probe deskew (``"3 ns"``), winding resistance of a single-winding capture
+        (``"0.8"`` [ohm]) and a DC bias overriding the capture's own (``"60"`` [A/m]), as typed.
+    delimiter, decimal, time_unit, channels : str, optional
+        How the file is read (see :class:`workbench.ui.state.ReaderSettings`): ``"semicolon"``,
+        ``"comma"``, ``"us"``, ``"CH1=sense voltage, CH2=current"``; default the reader's guesses.
 
     Attributes
     ----------
     widget : ipywidgets.VBox
         Display this.
     controls : types.SimpleNamespace
-        ``capture, turns, sense_turns, area, volume, path_length, material, temperature``.
+        ``capture, turns, sense_turns, area, volume, path_length, material, temperature, deskew,
+        winding_resistance, h_dc, delimiter, decimal, time_unit, channels``.
     upload : ipywidgets.FileUpload
         Loads a CSV or .npz capture of one's own (live sessions only).
     source : bokeh.models.ColumnDataSource
@@ -79,9 +102,12 @@ class CapturePanel(PanelBase):
 
     def __init__(self, capture: str | None = None, *, turns: str | None = None, sense_turns: str | None = None,
                  area: str | None = None, volume: str | None = None, path_length: str | None = None,
-                 material: str | None = None):
+                 material: str | None = None, deskew: str | None = None, winding_resistance: str | None = None,
+                 h_dc: str | None = None, delimiter: str = "detected", decimal: str = "detected", time_unit: str = "",
+                 channels: str = ""):
         super().__init__()
-        self._captures = {}  # dropdown key -> CaptureData (read once)
+        self._captures = {}  # (dropdown key, reader options) -> CaptureData (read once)
+        self._uploads = {}  # dropdown key -> (file name, bytes) of an uploaded capture, read again on new options
         self._files = {}  # dropdown key -> file entry (name, size, SHA-256) for the report
         demos = demo_captures()
         options = list(demos) or ["(no demo captures found)"]
@@ -104,6 +130,22 @@ class CapturePanel(PanelBase):
                                       **_BOX)
         c.temperature = QuantityText("", unit="degC", name="core temperature",
                                      description="core temperature [°C] (optional)", **_BOX)
+        c.deskew = QuantityText("", unit="s", name="probe deskew", description="probe deskew [s, e.g. 3 ns]",
+                                placeholder="optional", **_BOX)
+        c.winding_resistance = QuantityText("", unit="ohm", name="winding resistance",
+                                            description="winding resistance R [Ω]", placeholder="optional, V-I capture",
+                                            **_BOX)
+        c.h_dc = QuantityText("", unit="A/m", name="DC bias H_dc", description="DC bias H_dc [A/m]",
+                              placeholder="from N I_dc / l_e", **_BOX)
+        c.delimiter = widgets.Dropdown(options=list(READER_DELIMITERS), value=delimiter, description="column delimiter",
+                                       **_BOX)
+        c.decimal = widgets.Dropdown(options=list(READER_DECIMALS), value=decimal, description="decimal mark", **_BOX)
+        c.time_unit = widgets.Text(value=time_unit, description="time unit [e.g. us]", placeholder="from the header",
+                                   continuous_update=False, **_BOX)
+        c.channels = widgets.Text(value=channels, description="channels [NAME=MEANING, ...]",
+                                  placeholder="e.g. CH1=sense voltage, CH2=current, CH3=ignore",
+                                  continuous_update=False, style={"description_width": "250px"},
+                                  layout=widgets.Layout(width="680px"))
         self.upload = widgets.FileUpload(accept=".csv,.txt,.npz", multiple=False, description="Upload a capture",
                                          layout=widgets.Layout(width="190px"))
 
@@ -119,8 +161,10 @@ class CapturePanel(PanelBase):
         self.upload.observe(self._uploaded, names="value")
         self._wire(skip=("capture",))
         overrides = {"turns": turns, "sense_turns": sense_turns, "area": area, "volume": volume,
-                     "path_length": path_length, "material": material}
-        for n in ("capture", "turns", "sense_turns", "area", "volume", "path_length", "material", "temperature"):
+                     "path_length": path_length, "material": material, "deskew": deskew,
+                     "winding_resistance": winding_resistance, "h_dc": h_dc}
+        for n in ("capture", "turns", "sense_turns", "area", "volume", "path_length", "material", "temperature",
+                  "deskew", "winding_resistance", "h_dc", "delimiter", "decimal", "time_unit", "channels"):
             self.field(n)
         with self.hold():  # first result before the BokehModel is made, so the page starts with it
             if demos:
@@ -136,7 +180,11 @@ class CapturePanel(PanelBase):
                     "One averaged period of flux, the B-H loop and where the loss goes; measured against predicted."),
             widgets.HBox([f["capture"], self.upload]),
             widgets.VBox([f[n] for n in ("turns", "sense_turns", "area", "volume", "path_length", "material",
-                                         "temperature")]),
+                                         "temperature", "deskew", "winding_resistance", "h_dc")]),
+            widgets.HTML('<div style="font-weight:600;margin-top:6px">Reading the file</div>'
+                         '<div style="color:#444">The reader guesses these; set one where a guess is wrong '
+                         '(applies to the chosen and uploaded files).</div>'),
+            widgets.VBox([f[n] for n in ("delimiter", "decimal", "time_unit", "channels")]),
             self.errors,
             self.stale_html,
             self.results_box,
@@ -173,47 +221,111 @@ class CapturePanel(PanelBase):
         self.plots = column(f1, f2, f3, name="capture_plots")
 
     # -- captures ------------------------------------------------------------------------
-    def _data(self, key: str):
-        if key not in self._captures:
+    def reader_settings(self) -> ReaderSettings:
+        """The "reading the file" controls as :class:`~workbench.ui.state.ReaderSettings`."""
+        c = self.controls
+        return ReaderSettings(delimiter=c.delimiter.value, decimal=c.decimal.value, time_unit=c.time_unit.value,
+                              channels=c.channels.value)
+
+    @staticmethod
+    def _read_error(exc: ValueError, reader: ReaderSettings, name: str) -> InputError:
+        """A reader's error, marked at the option it names, else at the overrides that may cause it, else the file."""
+        text = str(exc).replace("<buffer>", name, 1)
+        low = text.lower()
+        opts = reader.options()
+        named = [n for n, hit in (("channels", "channels[" in low or "channels=" in low),
+                                  ("time_unit", "time_unit" in opts and "'time'" in low and "unit" in low),
+                                  ("delimiter", "delimiter" in low), ("decimal", "decimal" in low)) if hit]
+        if not named:
+            guessed = [n for n in ("delimiter", "decimal", "time_unit", "channels") if n in opts]
+            if guessed:
+                shown = ", ".join(f"{n.replace('_', ' ')} {getattr(reader, n)!r}" for n in guessed)
+                text = f"{text} (read with {shown}; 'detected' or an empty box lets the reader guess)"
+            named = guessed or ["capture"]
+        return InputError(tuple(named), text)
+
+    def _data(self, key: str, reader: ReaderSettings | None = None):
+        """The capture ``key`` read with the reader options (once per capture and options)."""
+        reader = self.reader_settings() if reader is None else reader
+        cache = (key, reader.key())
+        if cache not in self._captures:
+            opts = reader.options()
             if key.startswith(_UPLOAD_PREFIX):
-                raise ValueError(f"the uploaded capture {key!r} is no longer in memory; upload it again")
-            path = demo_capture_folder() / key
-            if not path.is_file():
-                raise ValueError(f"capture: no demo capture named {key!r} in {demo_capture_folder()}")
-            self._captures[key] = read_capture(path)
-            self._files[key] = file_entry(path, role="capture")
-        return self._captures[key]
+                if key not in self._uploads:
+                    raise ValueError(f"the uploaded capture {key!r} is no longer in memory; upload it again")
+                name, content = self._uploads[key]
+                try:
+                    data = dataclasses.replace(read_capture(io.BytesIO(content), **opts), source=name)
+                except ValueError as exc:  # the reader names a buffer; name the uploaded file instead
+                    raise self._read_error(exc, reader, name) from None
+            else:
+                path = demo_capture_folder() / key
+                if not path.is_file():
+                    raise ValueError(f"capture: no demo capture named {key!r} in {demo_capture_folder()}")
+                try:
+                    data = read_capture(path, **opts)
+                except ValueError as exc:
+                    raise self._read_error(exc, reader, key) from None
+                if key not in self._files:
+                    self._files[key] = file_entry(path, role="capture")
+            while len(self._captures) >= _CACHE_SIZE:
+                self._captures.pop(next(iter(self._captures)))
+            self._captures[cache] = data
+        return self._captures[cache]
 
     def _apply_presets(self, key: str):
         presets = capture_presets(self._data(key).metadata)
+        if key.startswith(_UPLOAD_PREFIX) and not presets:
+            return  # a file of one's own without an "analyse with" line keeps the boxes as typed
         for name in ("turns", "sense_turns", "area", "volume", "path_length"):
             getattr(self.controls, name).value = presets.get(name, "")
         if "material" in presets and presets["material"] in self.controls.material.options:
             self.controls.material.value = presets["material"]
 
+    _listing = False
+
     def _capture_changed(self, change):
+        if self._listing:
+            return
         try:
             with self.hold():
-                if not str(change["new"]).startswith(_UPLOAD_PREFIX):
-                    self._apply_presets(change["new"])
+                self._apply_presets(change["new"])
                 self._pending = True
         except Exception as exc:  # shown in the panel, never swallowed
             self.report_error(exc)
 
     def load_bytes(self, name: str, content: bytes):
-        """Load a capture from the bytes of a file (what the upload button does) and select it."""
-        try:
-            data = read_capture(io.BytesIO(bytes(content)))
-        except ValueError as exc:  # the reader names a buffer; name the uploaded file instead
-            raise ValueError(str(exc).replace("<buffer>", name, 1)) from None
-        data = dataclasses.replace(data, source=name)
+        """Load a capture from the bytes of a file (what the upload button does) and select it.
+
+        The file is read with the panel's reader options (and read again when they change);
+        one it cannot be read with them is refused with the reader's message naming ``name``.
+        """
         key = f"{_UPLOAD_PREFIX}{name}"
-        self._captures[key] = data
+        content = bytes(content)
+        previous = self._uploads.get(key)
+        self._uploads[key] = (name, content)
+        for cache in [k for k in self._captures if k[0] == key]:
+            del self._captures[cache]
+        try:
+            self._data(key)
+        except ValueError:
+            if previous is None:
+                del self._uploads[key]
+            else:
+                self._uploads[key] = previous
+            raise
         self._files[key] = {"role": "capture (uploaded)", "name": name, "path": None, "bytes": len(bytes(content)),
                             "sha256": hashlib.sha256(bytes(content)).hexdigest()}
         dd = self.controls.capture
+        if dd.value == key:  # the same name uploaded again: show the new content
+            self._update()
+            return
         if key not in dd.options:
-            dd.options = [*[o for o in dd.options if not str(o).startswith("(no demo")], key]
+            self._listing = True  # new options move the selection to the first one: no presets from it
+            try:
+                dd.options = [*[o for o in dd.options if not str(o).startswith("(no demo")], key]
+            finally:
+                self._listing = False
         dd.value = key
 
     def _uploaded(self, change):  # live sessions only: the browser sends the file
@@ -228,7 +340,7 @@ class CapturePanel(PanelBase):
 
     # -- behaviour -----------------------------------------------------------------------
     def settings(self) -> CaptureSettings:
-        """The boxes read into SI settings (empty boxes are None)."""
+        """The boxes read into SI settings (empty boxes are None; the reader options are in :meth:`reader_settings`)."""
         c = self.controls
 
         def opt(name):
@@ -238,20 +350,18 @@ class CapturePanel(PanelBase):
         material = None if c.material.value == _NO_MODEL else c.material.value
         return CaptureSettings(turns=opt("turns"), sense_turns=opt("sense_turns"), area=opt("area"),
                                volume=opt("volume"), path_length=opt("path_length"), material=material,
-                               temperature=opt("temperature"))
+                               temperature=opt("temperature"), deskew=opt("deskew"),
+                               winding_resistance=opt("winding_resistance"), h_dc=opt("h_dc"))
 
     def _refresh(self):
         settings = self.settings()
-        data = self._read("capture", lambda: self._data(self.controls.capture.value))
+        reader = self.reader_settings()
+        data = self._read("capture", lambda: self._data(self.controls.capture.value, reader))
         try:
             view = capture_view(data, settings)
         except ValueError as exc:  # the analysis names the option it misses: mark that box
-            from workbench.ui.state import InputError
-
             text = str(exc)
-            hits = [n for n, key in (("turns", "--turns"), ("sense_turns", "--sense-turns"), ("area", "--area"),
-                                     ("volume", "--volume"), ("path_length", "--path-length"),
-                                     ("temperature", "--temperature")) if key in text]
+            hits = [n for n, key in _OPTION_CONTROLS if key in text]
             empty = [n for n in hits if not getattr(self.controls, n).value.strip()]
             if hits:  # mark the boxes left empty among those named, else all named
                 raise InputError(tuple(empty or hits), text) from None
@@ -322,7 +432,8 @@ class CapturePanel(PanelBase):
         v = self.view
         a = v.analysis
         key = self.controls.capture.value
-        inputs = {"capture": Path(str(a.source)).name, **v.settings.to_dict()}
+        inputs = {"capture": Path(str(a.source)).name, **v.settings.to_dict(),
+                  "reading": self.reader_settings().to_dict()}
         results = {**a.to_dict(),
                    "loss_rows": [{"part": r[0], "w_m3": r[1], "w_kg": r[2], "w_in_core": r[3]} for r in v.loss_rows]}
         cols = self._loss_columns(v)

@@ -21,7 +21,7 @@ from workbench.analysis.sweep import FrequencySweep
 from workbench.checks import positive_number
 from workbench.materials import get_material
 from workbench.report.numbers import eng
-from workbench.units import parse_quantity
+from workbench.units import parse_quantity, unit_scale
 
 __all__ = [
     "InputError",
@@ -35,6 +35,9 @@ __all__ = [
     "ComparisonView",
     "comparison_view",
     "CaptureSettings",
+    "ReaderSettings",
+    "READER_DELIMITERS",
+    "READER_DECIMALS",
     "CaptureView",
     "capture_view",
     "capture_presets",
@@ -76,6 +79,18 @@ def _check_common(shape, duty, f_min, f_max, n_points):
                          f"f_min must be below f_max, got f_min={f_min!r} Hz and f_max={f_max!r} Hz")
     if not isinstance(n_points, (int, np.integer)) or not 2 <= n_points <= 20000:
         raise InputError(("n_points",), f"n_points must be an integer from 2 to 20000, got {n_points!r}")
+
+
+def _check_h_dc(value) -> float | None:
+    if value is None:
+        return None
+    try:
+        h = float(value)
+    except (TypeError, ValueError):
+        h = math.nan
+    if not math.isfinite(h):
+        raise InputError(("h_dc",), f"DC bias H_dc must be a finite field strength in A/m, got {value!r}")
+    return h
 
 
 def _hz(x: float) -> str:
@@ -210,6 +225,8 @@ class FrequencySettings:
         One period of flux to sweep when ``shape == "waveform"`` (time scaled, flux kept).
     waveform_name : str
         What the waveform is (file name), for texts and reports.
+    h_dc : float or None
+        DC bias field strength [A/m] passed to the engine; None for no bias.
     """
 
     material: str = "M270-35A"
@@ -231,6 +248,7 @@ class FrequencySettings:
     compare_resistivity: float | None = None
     waveform: object = field(default=None, repr=False, compare=False)
     waveform_name: str = ""
+    h_dc: float | None = None
 
     def __post_init__(self):
         if self.shape == "waveform":
@@ -251,6 +269,7 @@ class FrequencySettings:
         for f in freqs:
             _check_positive("operating_freqs", f)
         object.__setattr__(self, "operating_freqs", freqs)
+        object.__setattr__(self, "h_dc", _check_h_dc(self.h_dc))
 
     @property
     def has_overlay(self) -> bool:
@@ -268,6 +287,7 @@ class FrequencySettings:
             "loss_axis": "W/kg" if self.per_mass else "W/m3", "core_volume_m3": self.volume,
             "operating_frequencies_hz": list(self.operating_freqs),
             "second_thickness_m": self.compare_thickness, "second_resistivity_ohm_m": self.compare_resistivity,
+            "h_dc_a_m": self.h_dc,
         }
 
 
@@ -328,7 +348,7 @@ def _sweep(s: FrequencySettings, freqs, thickness, resistivity):
     shape = s.waveform if s.shape == "waveform" else s.shape
     return sweep_frequency(s.material, shape, b_peak=None if s.shape == "waveform" else s.b_peak, duty=s.duty,
                            freqs=freqs, thickness=thickness, resistivity=resistivity, skin_effect=s.skin_effect,
-                           include_excess=s.include_excess, temperature=s.temperature)
+                           include_excess=s.include_excess, temperature=s.temperature, h_dc=s.h_dc)
 
 
 def _parts(sw, include_excess: bool) -> dict:
@@ -468,6 +488,8 @@ class ComparisonSettings:
         Loss curves in W/kg instead of W/m^3.
     volume : float or None
         Core volume [m^3] for the loss in watts at the design frequency.
+    h_dc : float or None
+        DC bias field strength [A/m] passed to the engine; None for no bias.
     """
 
     materials: tuple[str, ...] = ("M270-35A", "fe-amorphous", "nanocrystalline", "mnzn-power-ferrite")
@@ -481,9 +503,11 @@ class ComparisonSettings:
     n_points: int = 400
     per_mass: bool = False
     volume: float | None = None
+    h_dc: float | None = None
 
     def __post_init__(self):
         _check_common(self.shape, self.duty, self.f_min, self.f_max, self.n_points)
+        object.__setattr__(self, "h_dc", _check_h_dc(self.h_dc))
         if self.volume is not None:
             _check_positive("volume", self.volume)
         if isinstance(self.materials, str) or not self.materials:
@@ -498,7 +522,7 @@ class ComparisonSettings:
             "materials": list(self.materials), "shape": self.shape, "duty": self.duty, "b_peak_t": self.b_peak,
             "loss_density_w_m3": self.loss_density, "design_frequency_hz": self.design_freq,
             "f_min_hz": self.f_min, "f_max_hz": self.f_max, "n_points": self.n_points,
-            "loss_axis": "W/kg" if self.per_mass else "W/m3", "core_volume_m3": self.volume,
+            "loss_axis": "W/kg" if self.per_mass else "W/m3", "core_volume_m3": self.volume, "h_dc_a_m": self.h_dc,
         }
 
 
@@ -522,6 +546,8 @@ class ComparisonView:
     best_fb : str or None
         Material with the largest f * B_peak inside its fitted ranges at the design frequency.
     notes : tuple of str
+    warnings : tuple of str
+        The engine's warnings for the materials (e.g. a bias without bias data), each once.
     """
 
     settings: ComparisonSettings
@@ -533,6 +559,7 @@ class ComparisonView:
     summary_rows: tuple
     best_fb: str | None
     notes: tuple[str, ...]
+    warnings: tuple[str, ...] = ()
 
 
 def _split(values: np.ndarray, valid: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -563,7 +590,8 @@ def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) 
     s = settings
     mats = [get_material(name) for name in s.materials]
     freqs = np.geomspace(s.f_min, s.f_max, s.n_points)
-    cmp = compare_materials(mats, s.shape, b_peak=s.b_peak, loss_density=s.loss_density, duty=s.duty, freqs=freqs)
+    cmp = compare_materials(mats, s.shape, b_peak=s.b_peak, loss_density=s.loss_density, duty=s.duty, freqs=freqs,
+                            h_dc=s.h_dc)
     n = len(cmp.curves)
     colours = list(colours) if colours is not None else ["#000000"] * n
     dashes = list(dashes) if dashes is not None else ["solid"] * n
@@ -583,7 +611,7 @@ def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) 
     loss_in, loss_out = lines("loss")
     fb_in, fb_out = lines("fb")
     at = compare_materials(mats, s.shape, b_peak=s.b_peak, loss_density=s.loss_density, duty=s.duty,
-                           freqs=np.array([s.design_freq]))
+                           freqs=np.array([s.design_freq]), h_dc=s.h_dc)
     rows = []
     for c in at.curves:
         rows.append({
@@ -599,7 +627,8 @@ def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) 
             "f_b_peak_valid": bool(c.fb_valid[0]),
         })
     best = at.best_at(s.design_freq, by="fb")
-    return ComparisonView(s, cmp, loss_in, loss_out, fb_in, fb_out, tuple(rows), best, cmp.notes)
+    warnings = tuple(dict.fromkeys([*cmp.warnings, *at.warnings]))
+    return ComparisonView(s, cmp, loss_in, loss_out, fb_in, fb_out, tuple(rows), best, cmp.notes, warnings)
 
 
 # ==========================================================================================
@@ -632,6 +661,88 @@ def capture_presets(metadata) -> dict:
     return out
 
 
+#: Delimiter choices of the capture reader ("detected": the reader's guess).
+READER_DELIMITERS = ("detected", "comma", "semicolon", "tab", "space")
+#: Decimal-mark choices of the capture reader ("detected": the reader's guess).
+READER_DECIMALS = ("detected", "point", "comma")
+
+
+@dataclass(frozen=True)
+class ReaderSettings:
+    """How a capture file is read: overrides of the reader's guesses (defaults: detected).
+
+    Attributes
+    ----------
+    delimiter : str
+        One of :data:`READER_DELIMITERS`.
+    decimal : str
+        One of :data:`READER_DECIMALS`.
+    time_unit : str
+        Unit of the time column as written (``"us"``); empty for the header's (else s).
+    channels : str
+        What columns hold, typed ``"NAME=MEANING, ..."`` (NAME a header name or 0-based
+        index; MEANING voltage, sense voltage, current, flux density, flux, time or ignore),
+        parsed as the command line's ``--channel``
+        (:func:`workbench.cli.reader_options.parse_channel_map`); empty for the guesses.
+    """
+
+    delimiter: str = "detected"
+    decimal: str = "detected"
+    time_unit: str = ""
+    channels: str = ""
+
+    def __post_init__(self):
+        if self.delimiter not in READER_DELIMITERS:
+            raise InputError(("delimiter",), f"delimiter must be one of {', '.join(READER_DELIMITERS)}, "
+                                             f"got {self.delimiter!r}")
+        if self.decimal not in READER_DECIMALS:
+            raise InputError(("decimal",), f"decimal mark must be one of {', '.join(READER_DECIMALS)}, "
+                                           f"got {self.decimal!r}")
+        object.__setattr__(self, "time_unit", str(self.time_unit).strip())
+        object.__setattr__(self, "channels", str(self.channels).strip())
+        if self.time_unit:
+            try:
+                unit_scale(self.time_unit, "s")
+            except ValueError as exc:
+                raise InputError(("time_unit",), f"time unit {self.time_unit!r}: {exc}") from None
+        self.channel_map()  # malformed pairs are refused here, at the box
+
+    def channel_map(self) -> dict:
+        """Column -> meaning from ``channels`` (empty when nothing is typed)."""
+        from workbench.cli.reader_options import parse_channel_map
+
+        items = [t.strip() for t in self.channels.replace(";", ",").split(",") if t.strip()]
+        try:
+            return parse_channel_map(items, "channel mapping")
+        except ValueError as exc:
+            raise InputError(("channels",), str(exc)) from None
+
+    def options(self) -> dict:
+        """Keyword arguments of :func:`workbench.capture.read_capture` (only the overrides given)."""
+        out: dict = {}
+        if self.delimiter != "detected":
+            out["delimiter"] = self.delimiter
+        if self.decimal != "detected":
+            out["decimal"] = self.decimal
+        if self.time_unit:
+            out["time_unit"] = self.time_unit
+        channels = self.channel_map()
+        if channels:
+            out["channels"] = channels
+        return out
+
+    def key(self) -> tuple:
+        """Hashable form of the options (a panel caches one read per file and options)."""
+        opts = self.options()
+        return tuple(sorted((k, tuple(sorted((str(c), m) for c, m in v.items())) if isinstance(v, dict) else v)
+                            for k, v in opts.items()))
+
+    def to_dict(self) -> dict:
+        channels = {str(k): v for k, v in self.channel_map().items()}
+        return {"delimiter": self.delimiter, "decimal_mark": self.decimal, "time_unit": self.time_unit or None,
+                "channel_mapping": channels or None}
+
+
 @dataclass(frozen=True)
 class CaptureSettings:
     """Inputs of the capture panel besides the capture itself (SI units; None = not given).
@@ -652,6 +763,13 @@ class CaptureSettings:
         Library material for the model loss.
     temperature : float or None
         Core temperature [degC].
+    deskew : float or None
+        Delay of the current probe against the voltage probe [s] (the current is read
+        this much later before the loss integral); None for none.
+    winding_resistance : float or None
+        Resistance of the winding of a single-winding V-I capture [ohm].
+    h_dc : float or None
+        DC bias field strength [A/m] overriding the capture's own ``N I_dc / l_e``.
     """
 
     turns: float | None = None
@@ -661,6 +779,9 @@ class CaptureSettings:
     path_length: float | None = None
     material: str | None = None
     temperature: float | None = None
+    deskew: float | None = None
+    winding_resistance: float | None = None
+    h_dc: float | None = None
 
     def __post_init__(self):
         for name in ("turns", "sense_turns", "area", "volume", "path_length"):
@@ -668,6 +789,14 @@ class CaptureSettings:
                 _check_positive(name, getattr(self, name))
         if self.temperature is not None and not math.isfinite(float(self.temperature)):
             raise InputError(("temperature",), f"temperature must be finite, got {self.temperature!r}")
+        if self.deskew is not None and not math.isfinite(float(self.deskew)):
+            raise InputError(("deskew",), f"deskew must be a finite time in s, got {self.deskew!r}")
+        if self.winding_resistance is not None:
+            r = float(self.winding_resistance)
+            if not (math.isfinite(r) and r >= 0):
+                raise InputError(("winding_resistance",),
+                                 f"winding resistance must be zero or positive in ohm, got {self.winding_resistance!r}")
+        object.__setattr__(self, "h_dc", _check_h_dc(self.h_dc))
 
     @property
     def effective_volume(self) -> float | None:
@@ -680,7 +809,8 @@ class CaptureSettings:
 
     def to_dict(self) -> dict:
         return {"turns": self.turns, "sense_turns": self.sense_turns, "area_m2": self.area, "volume_m3": self.volume,
-                "path_length_m": self.path_length, "material": self.material, "temperature_c": self.temperature}
+                "path_length_m": self.path_length, "material": self.material, "temperature_c": self.temperature,
+                "deskew_s": self.deskew, "winding_resistance_ohm": self.winding_resistance, "h_dc_a_m": self.h_dc}
 
 
 @dataclass(frozen=True)
@@ -734,7 +864,8 @@ def capture_view(data, settings: CaptureSettings) -> CaptureView:
     s = settings
     material = get_material(s.material) if s.material else None
     a = analyse_capture(data, turns=s.turns, sense_turns=s.sense_turns, area=s.area, volume=s.volume,
-                        path_length=s.path_length, material=material, temperature=s.temperature)
+                        path_length=s.path_length, material=material, temperature=s.temperature, deskew=s.deskew,
+                        winding_resistance=s.winding_resistance, h_dc=s.h_dc)
     w = a.waveform
     t = np.append(w.t, w.period)
     b = np.append(w.b, w.b[0])
@@ -765,6 +896,11 @@ def capture_view(data, settings: CaptureSettings) -> CaptureView:
                f"{a.periods_in_record:.3g} in the record (period-to-period spread {100 * a.spread:.2g} %); "
                f"B_peak {eng(a.b_peak, 'T', 4)}, B_dc {eng(w.b_dc if abs(w.b_dc) > 1e-4 * a.b_peak else 0.0, 'T', 3)}; {a.waveform_class} waveform, "
                f"flux rising for {100 * a.duty:.3g} % of the period; flux from {a.kind} channel(s).")
+    if a.h_dc is not None:
+        how = "as typed" if s.h_dc is not None else "N I_dc / l_e from the capture's mean current"
+        summary += f" DC bias H_dc {eng(a.h_dc, 'A/m', 4)} ({how})."
+    else:
+        summary += " No DC bias applied (H_dc not given and none derived from the capture)."
     if a.ratio is not None:
         summary += f" Measured / predicted = {a.ratio:.3g}."
     return CaptureView(s, a, period, unit, a.h is not None, tuple(r for r in rows if r is not None), summary)
