@@ -68,6 +68,8 @@ class FrequencyPanel(PanelBase):
         ``"waveform"`` and selected at start; its flux is kept, time is scaled.
     waveform_name : str
         What the waveform is (shown in texts and the report).
+    h_dc : str
+        DC bias field strength as typed (``"60"`` [A/m]); empty for none.
 
     Attributes
     ----------
@@ -75,7 +77,7 @@ class FrequencyPanel(PanelBase):
         Display this.
     controls : types.SimpleNamespace
         ``material, shape, duty, b_peak, thickness_mm, resistivity_uohm_m, skin_effect,
-        include_excess, f_min, f_max, temperature, loss_axis, volume, operating_freqs,
+        include_excess, f_min, f_max, temperature, h_dc, loss_axis, volume, operating_freqs,
         compare_thickness_mm, compare_resistivity_uohm_m``; set ``.value`` to drive the panel.
         ``b_peak``, ``thickness_mm`` and ``resistivity_uohm_m`` are :class:`LogValue`
         controls: a 2 %-per-step slider and a box whose typed value is used exactly.
@@ -100,7 +102,7 @@ class FrequencyPanel(PanelBase):
     def __init__(self, material: str = "M270-35A", *, shape: str = "sine", duty: float = 0.5, b_peak: float = 1.0,
                  thickness: float | None = None, resistivity: float | None = None, skin_effect: bool = True,
                  include_excess: bool = False, f_min: str = "10", f_max: str = "1M", operating_freqs: str = "",
-                 volume: str = "", waveform=None, waveform_name: str = "captured period"):
+                 volume: str = "", waveform=None, waveform_name: str = "captured period", h_dc: str = ""):
         super().__init__()
         mat = get_material(material)
         d = mat.thickness if thickness is None else float(thickness)
@@ -128,6 +130,8 @@ class FrequencyPanel(PanelBase):
         c.f_max = QuantityText(f_max, unit="Hz", name="highest frequency", description="to f [Hz]", **_TEXT)
         c.temperature = QuantityText("", unit="degC", name="core temperature", description="core temperature [°C]",
                                      placeholder="material's reference", **_TEXT)
+        c.h_dc = QuantityText(h_dc, unit="A/m", name="DC bias H_dc", description="DC bias H_dc [A/m]",
+                              placeholder="optional", **_TEXT)
         c.loss_axis = widgets.Dropdown(options=[("per volume, W/m³", "W/m3"), ("per mass, W/kg", "W/kg")],
                                        value="W/m3", description="loss axis", **_WIDE)
         c.volume = QuantityText(volume, unit="m3", name="core volume", description="core volume V_e",
@@ -154,7 +158,7 @@ class FrequencyPanel(PanelBase):
 
         c.material.observe(self._material_changed, names="value")
         self._wire(skip=("material",))
-        names = ("material", "shape", "duty", "b_peak", "temperature", "f_min", "f_max", "thickness_mm",
+        names = ("material", "shape", "duty", "b_peak", "temperature", "h_dc", "f_min", "f_max", "thickness_mm",
                  "resistivity_uohm_m", "skin_effect", "include_excess", "loss_axis", "volume", "operating_freqs",
                  "compare_thickness_mm", "compare_resistivity_uohm_m")
         for n in names:
@@ -167,7 +171,8 @@ class FrequencyPanel(PanelBase):
             heading("Loss against frequency",
                     "Hysteresis, classical eddy and excess loss of one waveform; where eddy loss overtakes hysteresis."),
             widgets.HBox([
-                widgets.VBox([f[n] for n in ("material", "shape", "duty", "b_peak", "temperature", "f_min", "f_max")]),
+                widgets.VBox([f[n] for n in ("material", "shape", "duty", "b_peak", "temperature", "h_dc", "f_min",
+                                             "f_max")]),
                 widgets.VBox([f[n] for n in ("thickness_mm", "resistivity_uohm_m", "skin_effect", "include_excess",
                                              "loss_axis", "volume")]),
             ]),
@@ -291,6 +296,7 @@ class FrequencyPanel(PanelBase):
         c = self.controls
         temperature = self._read("temperature", lambda: c.temperature.si() if c.temperature.value.strip() else None)
         volume = self._read("volume", lambda: c.volume.si() if c.volume.value.strip() else None)
+        h_dc = self._read("h_dc", lambda: c.h_dc.si() if c.h_dc.value.strip() else None)
         return FrequencySettings(
             material=c.material.value, shape=c.shape.value, duty=float(c.duty.value),
             b_peak=float(self._read("b_peak")), thickness=float(self._read("thickness_mm")) * 1e-3,
@@ -301,7 +307,7 @@ class FrequencyPanel(PanelBase):
             operating_freqs=parse_frequency_list(c.operating_freqs.value),
             compare_thickness=self._optional_mm("compare_thickness_mm", 1e-3),
             compare_resistivity=self._optional_mm("compare_resistivity_uohm_m", 1e-6),
-            waveform=self.waveform, waveform_name=self.waveform_name)
+            waveform=self.waveform, waveform_name=self.waveform_name, h_dc=h_dc)
 
     def _refresh(self):
         settings = self.settings()
