@@ -109,3 +109,59 @@ def test_export_long_table(panel, tmp_path):
 def test_caution_line_is_shown(panel):
     text = " ".join(getattr(w, "value", "") for w in panel.widget.children if hasattr(w, "value"))
     assert "temperature rise" in text and "hazardous voltages" in text
+
+
+# --- DC bias -------------------------------------------------------------------------------------------------
+def test_dc_bias_reaches_the_comparison_and_its_warnings_are_listed(panel, monkeypatch):
+    from workbench.ui import state
+    from workbench.ui.controls import INVALID_CLASS
+
+    seen = []
+    real = state.compare_materials
+
+    def spy(*args, **kwargs):
+        seen.append(kwargs.get("h_dc"))
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(state, "compare_materials", spy)
+    before = [r["loss_w_m3"] for r in panel.view.summary_rows]
+    panel.controls.h_dc.value = "60"
+    assert panel.last_error is None
+    assert seen and all(h == 60.0 for h in seen)  # the curves and the design-frequency rows
+    assert panel.record()["inputs"]["h_dc_a_m"] == 60.0
+    # no library material has bias data: the loss is unchanged and each material is named in a warning
+    assert [r["loss_w_m3"] for r in panel.view.summary_rows] == before
+    for name in NAMES:
+        assert any(w.startswith(f"{name} has no DC-bias data") and "60 A/m" in w for w in panel.view.warnings), name
+    assert panel.notes_html.value.count("no DC-bias data") == len(NAMES)
+    assert "no DC-bias data" in " ".join(panel.record()["warnings"])
+    panel.controls.h_dc.value = "60 mT"
+    assert INVALID_CLASS in panel.fields["h_dc"]._dom_classes and panel.stale
+    panel.controls.h_dc.value = ""
+    assert panel.last_error is None and not any("DC-bias" in w for w in panel.view.warnings)
+
+
+def test_dc_bias_changes_a_biased_material_by_its_table(tmp_path, monkeypatch):
+    import dataclasses
+
+    from workbench.materials import SCHEMA_VERSION, BiasParams, material_to_toml
+
+    # a bias table invented for demonstration (test data): k x 2 from 0 to 100 A/m, exponents unchanged
+    m = get_material("nanocrystalline")
+    src = dict(m.sources, **{f"bias.{f}": "invented for demonstration (test table)"
+                             for f in ("h_dc", "k_ratio", "alpha_shift", "beta_shift")})
+    biased = dataclasses.replace(m, name="biased-nano-test", sources=src,
+                                 bias=BiasParams((0.0, 100.0), (1.0, 2.0), (0.0, 0.0), (0.0, 0.0)))
+    path = tmp_path / "user.toml"
+    path.write_text(f"schema_version = {SCHEMA_VERSION}\n\n{material_to_toml(biased)}")
+    monkeypatch.setenv("WORKBENCH_USER_LIBRARY", str(path))
+    panel = ComparisonPanel(("nanocrystalline", "biased-nano-test"), b_peak=0.1, design_freq="50k")
+    plain = {r["material"]: r["loss_w_m3"] for r in panel.view.summary_rows}
+    panel.controls.h_dc.value = "50"
+    rows = {r["material"]: r["loss_w_m3"] for r in panel.view.summary_rows}
+    # ln k ratio linear in H: at 50 A/m k is sqrt(1 x 2) times the unbiased k; a sine's Steinmetz loss
+    # k f^alpha B^beta scales with k (Steinmetz, Trans. AIEE 9, 1892)
+    assert rows["biased-nano-test"] == pytest.approx(plain["biased-nano-test"] * 2**0.5, rel=1e-9)
+    assert rows["nanocrystalline"] == pytest.approx(plain["nanocrystalline"], rel=1e-12)
+    assert any(w.startswith("nanocrystalline has no DC-bias data") for w in panel.view.warnings)
+    assert not any("biased-nano-test has no DC-bias data" in w for w in panel.view.warnings)

@@ -45,13 +45,15 @@ class ComparisonPanel(PanelBase):
         Frequency of the summary table as typed (``"20k"``).
     f_min, f_max : str
         Sweep range as typed [Hz].
+    h_dc : str
+        DC bias field strength as typed (``"60"`` [A/m]); empty for none.
 
     Attributes
     ----------
     widget : ipywidgets.VBox
         Display this.
     controls : types.SimpleNamespace
-        ``materials, shape, duty, b_peak, loss_density, design_freq, f_min, f_max, loss_axis, volume``.
+        ``materials, shape, duty, b_peak, loss_density, design_freq, f_min, f_max, loss_axis, volume, h_dc``.
         Each material keeps its colour whatever else is selected (:class:`workbench.ui.style.MaterialStyles`).
     loss_source, loss_source_extrapolated, fb_source, fb_source_extrapolated : ColumnDataSource
         Multi-line columns ``xs, ys, material, colour, dash``; the ``_extrapolated``
@@ -70,7 +72,7 @@ class ComparisonPanel(PanelBase):
 
     def __init__(self, materials=("M270-35A", "fe-amorphous", "nanocrystalline", "mnzn-power-ferrite"), *,
                  shape: str = "sine", duty: float = 0.5, b_peak: float = 0.1, loss_density: str = "200 kW/m3",
-                 design_freq: str = "20k", f_min: str = "10", f_max: str = "1M", volume: str = ""):
+                 design_freq: str = "20k", f_min: str = "10", f_max: str = "1M", volume: str = "", h_dc: str = ""):
         super().__init__()
         c = self.controls
         names = list_materials()
@@ -95,7 +97,9 @@ class ComparisonPanel(PanelBase):
                                        value="W/m3", description="loss axis", **_WIDE)
         c.volume = QuantityText(volume, unit="m3", name="core volume", description="core volume V_e",
                                 placeholder="optional, e.g. 12 cm3")
-        for box in (c.loss_density, c.design_freq, c.f_min, c.f_max, c.volume):
+        c.h_dc = QuantityText(h_dc, unit="A/m", name="DC bias H_dc", description="DC bias H_dc [A/m]",
+                              placeholder="optional")
+        for box in (c.loss_density, c.design_freq, c.f_min, c.f_max, c.volume, c.h_dc):
             box.style = {"description_width": "230px"}
             box.layout = widgets.Layout(width="400px")
 
@@ -110,7 +114,7 @@ class ComparisonPanel(PanelBase):
         self.view: ComparisonView | None = None
         self._wire()
         order = ("materials", "shape", "duty", "b_peak", "loss_density", "design_freq", "f_min", "f_max",
-                 "loss_axis", "volume")
+                 "loss_axis", "volume", "h_dc")
         for n in order:
             self.field(n)
         self._update()  # before the BokehModel is made, so the page starts with the first result
@@ -168,11 +172,12 @@ class ComparisonPanel(PanelBase):
 
             raise InputError(("materials",), "materials: select at least one material")
         volume = self._read("volume", lambda: c.volume.si() if c.volume.value.strip() else None)
+        h_dc = self._read("h_dc", lambda: c.h_dc.si() if c.h_dc.value.strip() else None)
         return ComparisonSettings(
             materials=tuple(c.materials.value), shape=c.shape.value, duty=float(c.duty.value),
             b_peak=float(self._read("b_peak")), loss_density=self._read("loss_density", c.loss_density.si),
             design_freq=self._read("design_freq", c.design_freq.si), f_min=self._read("f_min", c.f_min.si),
-            f_max=self._read("f_max", c.f_max.si), per_mass=c.loss_axis.value == "W/kg", volume=volume)
+            f_max=self._read("f_max", c.f_max.si), per_mass=c.loss_axis.value == "W/kg", volume=volume, h_dc=h_dc)
 
     def _refresh(self):
         s = self.settings()
@@ -195,7 +200,10 @@ class ComparisonPanel(PanelBase):
         self.summary_html.value = self._summary_html(view)
         notes = [*view.notes, "Solid lines: inside each material's fitted Steinmetz ranges; dotted: extrapolated.",
                  "Loss from the iGSE with each material's Steinmetz set (generic class data)."]
-        self.notes_html.value = "".join(f'<div style="color:#6b4b00">&#9656; {html.escape(n)}</div>' for n in notes)
+        self.notes_html.value = "".join(
+            [f'<div class="fluxheat-warning" style="color:#a33">&#9656; warning: {html.escape(w)}</div>'
+             for w in view.warnings]
+            + [f'<div style="color:#6b4b00">&#9656; {html.escape(n)}</div>' for n in notes])
 
     @staticmethod
     def _summary_columns(view):
@@ -266,7 +274,7 @@ class ComparisonPanel(PanelBase):
                      if best else "No material is inside its fitted range at the design frequency.")
         return self._record(v.settings.to_dict(), {"at_design_frequency": list(v.summary_rows), "best_f_b_peak": best},
                             material=[material_entry(get_material(n)) for n in v.settings.materials], table=table,
-                            statements=[statement], notes=list(v.notes))
+                            statements=[statement], warnings=list(v.warnings), notes=list(v.notes))
 
     def table(self) -> dict:
         """Long table: one row per material and frequency."""
