@@ -501,7 +501,7 @@ def _bias_adjusted(material, k: float, alpha: float, beta: float, h_dc: float | 
     data = getattr(material, "bias", None)
     if data is None:
         return k, alpha, beta, [
-            f"{name} has no DC-bias data: loss evaluated without the bias of {h_dc:g} A/m; {_BIAS_RULE_OF_THUMB}"
+            f"{name} has no DC-bias data: loss evaluated without the bias of {h_dc:.4g} A/m; {_BIAS_RULE_OF_THUMB}"
         ]
     from workbench.models.bias import bias_steinmetz
 
@@ -509,7 +509,7 @@ def _bias_adjusted(material, k: float, alpha: float, beta: float, h_dc: float | 
     warnings = []
     if b.extrapolated:
         warnings.append(
-            f"DC bias {b.h_dc:g} A/m lies beyond {name}'s bias data (up to {b.h_dc_max:g} A/m): the parameters at "
+            f"DC bias {b.h_dc:.4g} A/m lies beyond {name}'s bias data (up to {b.h_dc_max:g} A/m): the parameters at "
             f"{b.h_dc_max:g} A/m are used, so the loss is likely underestimated"
         )
     return b.k, b.alpha, b.beta, warnings

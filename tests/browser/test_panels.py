@@ -1,4 +1,4 @@
-"""Every panel in a real browser: JupyterLab runs notebooks 01-04, headless Chromium (network blocked)
+"""Every panel in a real browser: JupyterLab runs notebooks 01-05, headless Chromium (network blocked)
 shows each panel with plots that hold data and are not blank, an input changes what is shown, and an
 invalid input is marked at its box with the results hidden. Screenshots go to ``artifacts/browser/``.
 
@@ -34,6 +34,7 @@ NB = {
     "frequency": "02_eddy_vs_hysteresis_crossover.ipynb",
     "comparison": "03_choosing_a_core_material.ipynb",
     "fit": "04_fitting_a_loss_table.ipynb",
+    "thermal": "05_thermal_operating_point.ipynb",
 }
 
 
@@ -241,4 +242,26 @@ def test_fit_panel_renders_and_responds(page, server):
         _shot(panel, "fit_panel")
     except BaseException:
         _fail_shot(page, "fit_panel")
+        raise
+
+
+def test_thermal_panel_renders_and_responds(page, server):
+    try:
+        open_and_run(page, server, NB["thermal"])
+        panel = _panel(page, "thermal-operating-point", "thermal_balance")
+        wait_idle(server)
+        assert figure_length(page, "thermal_balance") > 10
+        assert _canvas_ink(panel) > 2000, "the P(T) plot looks blank"
+        summary = panel.locator(".fluxheat-thermal-summary")
+        before = summary.inner_text()
+        assert "degC" in before or "°C" in before, before
+        box = _text_box(panel, "winding loss")
+        box.fill("0.5")
+        box.press("Enter")
+        page.wait_for_function("(old) => document.querySelector('.fluxheat-thermal-summary').innerText !== old",
+                               arg=before, timeout=30_000)
+        settle(page, server, ".fluxheat-thermal-summary")
+        _shot(panel, "thermal_panel")
+    except BaseException:
+        _fail_shot(page, "thermal_panel")
         raise

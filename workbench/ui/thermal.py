@@ -239,6 +239,8 @@ class ThermalPanel(PanelBase):
             controls, self.errors, self.stale_html, self.results_box, caution_widget(),
             widgets.HTML(f'<div style="color:#5a3a00">&#9888; {html.escape(" ".join(_cautions()))}</div>'),
             self.export_bar.widget])
+        self.widget.add_class(f"fluxheat-panel-{self.kind}")
+        self.summary.add_class("fluxheat-thermal-summary")
 
     # -- state ---------------------------------------------------------------------------
     def settings(self) -> ThermalSettings:
