@@ -92,3 +92,21 @@ def test_export(panel, tmp_path):
     record = json.loads(Path(paths["json"]).read_text())
     assert record["results"]["temperature_c"] == pytest.approx(panel.view.result.temperature_c)
     assert any("burn" in c for c in record["cautions"])
+
+
+def test_inputs_that_do_not_apply_are_greyed_out():
+    # a captured period brings its own B_peak and frequency; R_th and a surface area exclude each other
+    from workbench.shapes import make_shape
+    from workbench.ui.thermal import ThermalPanel
+
+    panel = ThermalPanel("mnzn-power-ferrite", waveform=make_shape("triangle", b_peak=0.1, freq=1e5, duty=0.5))
+    c = panel.controls
+    assert c.b_peak.disabled and c.freq.disabled and c.duty.disabled
+    c.shape.value = "sine"
+    assert not c.b_peak.disabled and not c.freq.disabled and c.duty.disabled
+    c.shape.value = "trapezoid"
+    assert not c.duty.disabled
+    c.cooling.value = "R_th"
+    assert not c.r_th.disabled and c.surface_area.disabled
+    c.cooling.value = "surface area"
+    assert c.r_th.disabled and not c.surface_area.disabled

@@ -226,6 +226,10 @@ class ThermalPanel(PanelBase):
         self.summary = widgets.HTML()
         self.warnings_html = widgets.HTML()
         self.view = None
+        # inputs that do not apply are greyed out, so nothing shown is silently ignored
+        c.shape.observe(self._sync_enabled, names="value")
+        c.cooling.observe(self._sync_enabled, names="value")
+        self._sync_enabled()
         self._wire()
         self._update()
         self.export_bar = ExportBar(self.export, self.report_error, stem=self.export_stem)
@@ -241,6 +245,15 @@ class ThermalPanel(PanelBase):
             self.export_bar.widget])
         self.widget.add_class(f"fluxheat-panel-{self.kind}")
         self.summary.add_class("fluxheat-thermal-summary")
+
+    def _sync_enabled(self, _change=None):
+        c = self.controls
+        captured = c.shape.value == _WAVEFORM
+        for name in ("b_peak", "freq"):
+            getattr(c, name).disabled = captured
+        c.duty.disabled = captured or c.shape.value == "sine"
+        c.r_th.disabled = c.cooling.value != "R_th"
+        c.surface_area.disabled = c.cooling.value == "R_th"
 
     # -- state ---------------------------------------------------------------------------
     def settings(self) -> ThermalSettings:
