@@ -58,3 +58,13 @@ def test_folder_and_capture_commands_use_the_given_bias(tmp_path, capsys):
     capsys.readouterr()
     row = json.loads((tmp_path / "run.jsonl").read_text().splitlines()[0])
     assert row["h_dc_a_m"] == 10.0
+
+
+def test_deskew_of_a_sizeable_part_of_the_period_is_a_unit_slip():
+    # probe skew is nanoseconds; 1 ms on a 100 kHz capture is a unit typed wrong (common practice, no source)
+    with pytest.raises(ValueError, match="check the unit"):
+        analyse_file(BUCK, turns=TURNS, area=AREA, path_length=PATH_LENGTH, material="mnzn-power-ferrite",
+                     temperature=60, deskew=1e-3)
+    ok = analyse_file(BUCK, turns=TURNS, area=AREA, path_length=PATH_LENGTH, material="mnzn-power-ferrite",
+                      temperature=60, deskew=3e-9)
+    assert ok.measured_method == "single-winding"

@@ -809,6 +809,11 @@ def _measure(tg, rows, plan: _Plan, s: _Settings, period, folded: _Folded, model
     if plan.method is None:
         return _Measured(None, None, None, volume, (), ())
     deskew = s.deskew or 0.0
+    # Probe skews are nanoseconds to a few microseconds; a shift of a tenth of the period or more
+    # is a unit slip (ms typed for ns), not a skew (common practice, no source).
+    if abs(deskew) >= 0.1 * period:
+        raise ValueError(f"--deskew {deskew:.4g} s is {abs(deskew) / period:.2g} of the period "
+                         f"({period:.4g} s): probe skew is far smaller; check the unit (e.g. 3ns)")
     h = None
     if s.path_length is not None:
         phase = folded.waveform.t
