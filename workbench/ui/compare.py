@@ -179,6 +179,8 @@ class ComparisonPanel(PanelBase):
             design_freq=self._read("design_freq", c.design_freq.si), f_min=self._read("f_min", c.f_min.si),
             f_max=self._read("f_max", c.f_max.si), per_mass=c.loss_axis.value == "W/kg", volume=volume, h_dc=h_dc)
 
+    _axis_unit = None
+
     def _refresh(self):
         s = self.settings()
         styles = [self._styles.style(name) for name in s.materials]
@@ -192,11 +194,13 @@ class ComparisonPanel(PanelBase):
         for span in self.design_spans:
             span.location = s.design_freq
         unit = "W/kg" if s.per_mass else "W/m3"
-        self.loss_figure.yaxis.axis_label = f"{'specific loss' if s.per_mass else 'loss density'} P [{unit_label(unit)}]"
-        self.loss_figure.title.text = ("Specific loss at the chosen B_peak" if s.per_mass
-                                       else "Loss density at the chosen B_peak")
-        self.loss_figure.yaxis[0].formatter = tick_formatter(unit)
-        self._loss_hover.formatters = {"$x": hover_formatter("Hz"), "$y": hover_formatter(unit)}
+        if unit != self._axis_unit:  # new formatter models make the document re-collect its models: only on change
+            self._axis_unit = unit
+            self.loss_figure.yaxis.axis_label = f"{'specific loss' if s.per_mass else 'loss density'} P [{unit_label(unit)}]"
+            self.loss_figure.title.text = ("Specific loss at the chosen B_peak" if s.per_mass
+                                           else "Loss density at the chosen B_peak")
+            self.loss_figure.yaxis[0].formatter = tick_formatter(unit)
+            self._loss_hover.formatters = {"$x": hover_formatter("Hz"), "$y": hover_formatter(unit)}
         self.summary_html.value = self._summary_html(view)
         notes = [*view.notes, "Solid lines: inside each material's fitted Steinmetz ranges; dotted: extrapolated.",
                  "Loss from the iGSE with each material's Steinmetz set (generic class data)."]

@@ -257,7 +257,14 @@ class FrequencyPanel(PanelBase):
             apply_axis_format(f, x_unit="Hz", y_unit="W/m3" if f is fig else "J/m3")
         self.plots = column(fig, efig, name="frequency_plots")
 
+    _hover_key = None
+
     def _set_hover(self, unit: str, energy_unit: str, drawn):
+        # setting bokeh properties makes the document re-collect its models (tens of ms): only on change
+        key = (unit, energy_unit, tuple(sorted(drawn)))
+        if key == self._hover_key:
+            return
+        self._hover_key = key
         for hover, prefix in self._hovers:
             u = unit if prefix == "" else energy_unit
             tips = [("f", "@freq{eng}")] + [(label, f"@{prefix}{key}{{eng}}") for key, label in FREQUENCY_PARTS
