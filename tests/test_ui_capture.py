@@ -311,3 +311,23 @@ def test_dc_bias_from_the_capture_or_typed():
     assert _marked(panel) == ["h_dc"]
     flyback = CapturePanel(FLYBACK)  # no current channel, nothing typed: no bias, and the summary says so
     assert flyback.view.analysis.h_dc is None and "No DC bias applied" in flyback.view.summary
+
+
+def test_single_winding_capture_is_labelled_as_measured_by_that_method(tmp_path):
+    # one winding's voltage and current (invented sine pair): the table names the method the
+    # analysis used and that the figure still holds the copper loss without a winding resistance
+    import numpy as np
+
+    from workbench.capture import read_capture
+    from workbench.ui.state import CaptureSettings, capture_view
+
+    f = 20e3
+    t = np.arange(4000) / (50 * f)
+    v = 10 * np.sin(2 * np.pi * f * t)
+    i = 0.5 * np.sin(2 * np.pi * f * t - 1.2)
+    path = tmp_path / "one_winding.csv"
+    path.write_text("time (s),voltage (V),current (A)\n" + "\n".join(f"{a:.9e},{b:.6e},{c:.6e}" for a, b, c in zip(t, v, i)))
+    view = capture_view(read_capture(path), CaptureSettings(turns=10, area=50e-6, volume=2e-6))
+    assert view.analysis.measured_method == "single-winding"
+    labels = [r[0] for r in view.loss_rows]
+    assert any(label.startswith("measured (single-winding incl. copper loss") for label in labels), labels

@@ -891,7 +891,9 @@ def capture_view(data, settings: CaptureSettings) -> CaptureView:
         label = f"{a.model.total_model if a.model is not None else 'iGSE'} prediction ({a.model_name})"
         rows.append(row(label, a.model_loss))
     if a.measured_loss is not None:
-        rows.append(row("measured (two-winding)", a.measured_loss))
+        method = a.measured_method or "two-winding"
+        copper = " incl. copper loss" if method == "single-winding" and not a.inputs.get("winding_resistance_ohm") else ""
+        rows.append(row(f"measured ({method}{copper})", a.measured_loss))
     summary = (f"Detected frequency {_hz(a.freq)}; {a.periods_used} whole periods averaged of "
                f"{a.periods_in_record:.3g} in the record (period-to-period spread {100 * a.spread:.2g} %); "
                f"B_peak {eng(a.b_peak, 'T', 4)}, B_dc {eng(w.b_dc if abs(w.b_dc) > 1e-4 * a.b_peak else 0.0, 'T', 3)}; {a.waveform_class} waveform, "
