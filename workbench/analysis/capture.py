@@ -82,6 +82,7 @@ __all__ = [
     "classify_waveform",
     "flat_mask",
     "flatten_dwells",
+    "settle_ringing_dwells",
     "measured_loss",
     "predict_loss",
     "rising_fraction",
@@ -407,6 +408,82 @@ def flatten_dwells(waveform: FluxWaveform, rel_slope: float = 0.1, min_fraction:
         idx = (s0 + np.arange(ln + 1)) % n  # segment run covers samples s0 .. s0+ln
         b[idx] = b[idx].mean()
     return FluxWaveform(waveform.t, b, waveform.period), int(starts.size)
+
+
+def settle_ringing_dwells(waveform: FluxWaveform, *, band: float = 0.03, min_fraction: float = 0.05,
+                          entry: float = 0.5) -> tuple[FluxWaveform, int]:
+    """Set exactly flat the dwells in which a captured flux only rings (discontinuous conduction).
+
+    Parameters
+    ----------
+    waveform : FluxWaveform
+        One period of (denoised) flux, evenly sampled.
+    band : float
+        A dwell keeps the flux within this fraction of its peak-to-peak of the level it
+        was entered at [-].
+    min_fraction : float
+        Shortest dwell, as a fraction of the period [-].
+    entry : float
+        A dwell is entered from a straight ramp (over 3 % of the period its slope stays at
+        least this fraction of the peak slope and within 30 % of itself: an edge, not the
+        rounded top of a sine) [-].
+
+    Returns
+    -------
+    waveform : FluxWaveform
+        The period with each such dwell set to its mean flux (unchanged when none is found,
+        or when the flux would still rise or fall more than once outside the dwells).
+    n_dwells : int
+        Number of dwells set flat.
+
+    Notes
+    -----
+    After the switch of a discontinuous-mode converter opens, the winding voltage rings
+    with the circuit's capacitance around zero: the flux wobbles by a few per cent of its
+    swing while the core idles. The i2GSE relaxation belongs to that idle interval, which
+    a slope test alone does not see (the ringing slope reaches a tenth of the edge's).
+    Common practice, no source: an idle interval is recognised by the flux staying in a
+    narrow band for a good part of the period after a steep edge.
+    """
+    if not waveform.is_uniform():
+        return waveform, 0
+    b = np.asarray(waveform.b, dtype=float)
+    n = b.size
+    pp = float(np.ptp(b))
+    s = waveform.dbdt()
+    smax = float(np.max(np.abs(s))) if s.size else 0.0
+    if n < 16 or pp == 0 or smax == 0:
+        return waveform, 0
+    fast = np.abs(s) >= entry * smax
+    starts = np.flatnonzero(np.roll(fast, 1) & ~fast)  # sample i: segment i-1 is an edge, segment i is not
+    min_len = max(2, int(np.ceil(min_fraction * n)))
+    keep = np.zeros(n, dtype=bool)
+    ramp = max(2, int(np.ceil(0.03 * n)))
+    for i0 in starts.tolist():  # a loop over edges (a few per period), not over samples
+        # the ramp before the dwell is straight (a converter's constant winding voltage); the slope
+        # before a sine's rounded top keeps changing
+        before = np.abs(s[(i0 - 1 - np.arange(ramp)) % n])
+        if before.min() < entry * smax or before.max() > 1.3 * before.min():
+            continue
+        rolled = np.roll(b, -i0)
+        outside = np.abs(rolled - rolled[0]) > band * pp
+        j = int(np.argmax(outside)) if outside.any() else n
+        k = j - 1  # last sample inside the band; trim the start of the ramp that leaves it
+        while k > 0 and fast[(i0 + k - 1) % n]:
+            k -= 1
+        if k >= min_len:
+            keep[(i0 + np.arange(k + 1)) % n] = True
+    if not keep.any() or keep.all():
+        return waveform, 0
+    out = b.copy()
+    starts_k, lengths = _run_bounds(keep)
+    for s0, ln in zip(starts_k, lengths):
+        idx = (s0 + np.arange(ln)) % n
+        out[idx] = out[idx].mean()
+    settled = FluxWaveform(waveform.t, out, waveform.period)
+    if settled.reversals(0.0).size > 2:  # real minor loops outside the dwells: leave the capture as it is
+        return waveform, 0
+    return settled, int(starts_k.size)
 
 
 def classify_waveform(waveform: FluxWaveform, threshold: float | None = None) -> str:
@@ -771,6 +848,13 @@ def _fold_flux(tg, rows, plan: _Plan, s: _Settings, period, source) -> _Folded:
     waveform = FluxWaveform(fold.phase, dn.values, period)
     shape_class = classify_waveform(waveform, threshold)
     notes = []
+    if shape_class == "other":
+        settled, n_rung = settle_ringing_dwells(waveform)
+        if n_rung:
+            waveform = settled
+            shape_class = classify_waveform(waveform, threshold)
+            notes.append(f"{n_rung} idle interval{'s' if n_rung > 1 else ''} in which the flux only rang (within 3 % "
+                         "of its swing) set flat, so the i2GSE sees the zero-voltage interval")
     if shape_class == "trapezoidal":
         waveform, n_dwells = flatten_dwells(waveform)
         if n_dwells:
