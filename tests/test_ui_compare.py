@@ -165,3 +165,29 @@ def test_dc_bias_changes_a_biased_material_by_its_table(tmp_path, monkeypatch):
     assert rows["nanocrystalline"] == pytest.approx(plain["nanocrystalline"], rel=1e-12)
     assert any(w.startswith("nanocrystalline has no DC-bias data") for w in panel.view.warnings)
     assert not any("biased-nano-test has no DC-bias data" in w for w in panel.view.warnings)
+
+
+def test_core_temperature_typed_in_the_panel_reaches_the_engine():
+    # the warning asks for a temperature: the panel must let the user give one; the ferrite's loss at
+    # 25 degC relative to its reference follows the data file's quadratic factor (read with tomllib,
+    # not through the code under test)
+    import tomllib
+    from pathlib import Path
+
+    from workbench.ui.compare import ComparisonPanel
+    from workbench.ui.controls import INVALID_CLASS
+
+    tc = {k: v["value"] for k, v in tomllib.loads((Path(__file__).resolve().parents[1] / "data" / "materials.toml")
+                                                  .read_text())["materials"]["mnzn-power-ferrite"]["steinmetz"]
+          ["temperature"].items() if k.startswith("ct")}
+    panel = ComparisonPanel(materials=("mnzn-power-ferrite",))
+    reference = panel.view.comparison.curves[0].loss.copy()
+    assert any("no core temperature given" in w for w in panel.view.comparison.warnings)
+    panel.controls.temperature.value = "25"
+    warm = tc["ct1"] / (2 * tc["ct2"])
+    factor = (tc["ct0"] - tc["ct1"] * 25 + tc["ct2"] * 625) / (tc["ct0"] - tc["ct1"] * warm + tc["ct2"] * warm**2)
+    np.testing.assert_allclose(panel.view.comparison.curves[0].loss / reference, factor, rtol=1e-6)
+    assert not any("no core temperature given" in w for w in panel.view.comparison.warnings)
+    panel.controls.temperature.value = "-300"  # below absolute zero: marked at its box
+    assert "temperature" in panel.last_error
+    assert INVALID_CLASS in panel.fields["temperature"]._dom_classes

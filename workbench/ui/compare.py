@@ -47,13 +47,16 @@ class ComparisonPanel(PanelBase):
         Sweep range as typed [Hz].
     h_dc : str
         DC bias field strength as typed (``"60"`` [A/m]); empty for none.
+    temperature : str
+        Core temperature as typed (``"80"`` [degC]); empty for each material's reference temperature.
 
     Attributes
     ----------
     widget : ipywidgets.VBox
         Display this.
     controls : types.SimpleNamespace
-        ``materials, shape, duty, b_peak, loss_density, design_freq, f_min, f_max, loss_axis, volume, h_dc``.
+        ``materials, shape, duty, b_peak, loss_density, design_freq, f_min, f_max, loss_axis, volume, h_dc,
+        temperature``.
         Each material keeps its colour whatever else is selected (:class:`workbench.ui.style.MaterialStyles`).
     loss_source, loss_source_extrapolated, fb_source, fb_source_extrapolated : ColumnDataSource
         Multi-line columns ``xs, ys, material, colour, dash``; the ``_extrapolated``
@@ -72,7 +75,8 @@ class ComparisonPanel(PanelBase):
 
     def __init__(self, materials=("M270-35A", "fe-amorphous", "nanocrystalline", "mnzn-power-ferrite"), *,
                  shape: str = "sine", duty: float = 0.5, b_peak: float = 0.1, loss_density: str = "200 kW/m3",
-                 design_freq: str = "20k", f_min: str = "10", f_max: str = "1M", volume: str = "", h_dc: str = ""):
+                 design_freq: str = "20k", f_min: str = "10", f_max: str = "1M", volume: str = "", h_dc: str = "",
+                 temperature: str = ""):
         super().__init__()
         c = self.controls
         names = list_materials()
@@ -99,7 +103,9 @@ class ComparisonPanel(PanelBase):
                                 placeholder="optional, e.g. 12 cm3")
         c.h_dc = QuantityText(h_dc, unit="A/m", name="DC bias H_dc", description="DC bias H_dc [A/m]",
                               placeholder="optional")
-        for box in (c.loss_density, c.design_freq, c.f_min, c.f_max, c.volume, c.h_dc):
+        c.temperature = QuantityText(temperature, unit="degC", name="core temperature",
+                                     description="core temperature [°C]", placeholder="material's reference")
+        for box in (c.loss_density, c.design_freq, c.f_min, c.f_max, c.volume, c.h_dc, c.temperature):
             box.style = {"description_width": "230px"}
             box.layout = widgets.Layout(width="400px")
 
@@ -114,7 +120,7 @@ class ComparisonPanel(PanelBase):
         self.view: ComparisonView | None = None
         self._wire()
         order = ("materials", "shape", "duty", "b_peak", "loss_density", "design_freq", "f_min", "f_max",
-                 "loss_axis", "volume", "h_dc")
+                 "loss_axis", "volume", "h_dc", "temperature")
         for n in order:
             self.field(n)
         self._update()  # before the BokehModel is made, so the page starts with the first result
@@ -173,11 +179,13 @@ class ComparisonPanel(PanelBase):
             raise InputError(("materials",), "materials: select at least one material")
         volume = self._read("volume", lambda: c.volume.si() if c.volume.value.strip() else None)
         h_dc = self._read("h_dc", lambda: c.h_dc.si() if c.h_dc.value.strip() else None)
+        temperature = self._read("temperature", lambda: c.temperature.si() if c.temperature.value.strip() else None)
         return ComparisonSettings(
             materials=tuple(c.materials.value), shape=c.shape.value, duty=float(c.duty.value),
             b_peak=float(self._read("b_peak")), loss_density=self._read("loss_density", c.loss_density.si),
             design_freq=self._read("design_freq", c.design_freq.si), f_min=self._read("f_min", c.f_min.si),
-            f_max=self._read("f_max", c.f_max.si), per_mass=c.loss_axis.value == "W/kg", volume=volume, h_dc=h_dc)
+            f_max=self._read("f_max", c.f_max.si), per_mass=c.loss_axis.value == "W/kg", volume=volume, h_dc=h_dc,
+            temperature=temperature)
 
     _axis_unit = None
 
@@ -203,7 +211,8 @@ class ComparisonPanel(PanelBase):
             self._loss_hover.formatters = {"$x": hover_formatter("Hz"), "$y": hover_formatter(unit)}
         self.summary_html.value = self._summary_html(view)
         notes = [*view.notes, "Solid lines: inside each material's fitted Steinmetz ranges; dotted: extrapolated.",
-                 "Loss from the iGSE with each material's Steinmetz set (generic class data)."]
+                 "Loss from the loss engine with each material's Steinmetz set (generic class data): iGSE, "
+                 "plus the i2GSE relaxation where a material has relaxation data and the flux dwells."]
         self.notes_html.value = "".join(
             [f'<div class="fluxheat-warning" style="color:#a33">&#9656; warning: {html.escape(w)}</div>'
              for w in view.warnings]

@@ -81,6 +81,19 @@ def _check_common(shape, duty, f_min, f_max, n_points):
         raise InputError(("n_points",), f"n_points must be an integer from 2 to 20000, got {n_points!r}")
 
 
+def _check_temperature(value) -> float | None:
+    """A core temperature as typed in a panel [degC], or None (the engine refuses what lies above a material's limit)."""
+    if value is None:
+        return None
+    try:
+        t = float(value)
+    except (TypeError, ValueError):
+        t = math.nan
+    if not math.isfinite(t) or t < -273.15:
+        raise InputError(("temperature",), f"temperature must be a finite temperature in degC, got {value!r}")
+    return t
+
+
 def _check_h_dc(value) -> float | None:
     if value is None:
         return None
@@ -261,10 +274,7 @@ class FrequencySettings:
         for name in ("thickness", "resistivity", "volume", "compare_thickness", "compare_resistivity"):
             if getattr(self, name) is not None:
                 _check_positive(name, getattr(self, name))
-        if self.temperature is not None:
-            t = float(self.temperature)
-            if not math.isfinite(t) or t < -273.15:
-                raise InputError(("temperature",), f"temperature must be a finite temperature in degC, got {self.temperature!r}")
+        object.__setattr__(self, "temperature", _check_temperature(self.temperature))
         freqs = tuple(float(f) for f in self.operating_freqs)
         for f in freqs:
             _check_positive("operating_freqs", f)
@@ -490,6 +500,8 @@ class ComparisonSettings:
         Core volume [m^3] for the loss in watts at the design frequency.
     h_dc : float or None
         DC bias field strength [A/m] passed to the engine; None for no bias.
+    temperature : float or None
+        Core temperature [degC]; None for each material's reference temperature (stated in the warnings).
     """
 
     materials: tuple[str, ...] = ("M270-35A", "fe-amorphous", "nanocrystalline", "mnzn-power-ferrite")
@@ -504,10 +516,12 @@ class ComparisonSettings:
     per_mass: bool = False
     volume: float | None = None
     h_dc: float | None = None
+    temperature: float | None = None
 
     def __post_init__(self):
         _check_common(self.shape, self.duty, self.f_min, self.f_max, self.n_points)
         object.__setattr__(self, "h_dc", _check_h_dc(self.h_dc))
+        object.__setattr__(self, "temperature", _check_temperature(self.temperature))
         if self.volume is not None:
             _check_positive("volume", self.volume)
         if isinstance(self.materials, str) or not self.materials:
@@ -523,6 +537,7 @@ class ComparisonSettings:
             "loss_density_w_m3": self.loss_density, "design_frequency_hz": self.design_freq,
             "f_min_hz": self.f_min, "f_max_hz": self.f_max, "n_points": self.n_points,
             "loss_axis": "W/kg" if self.per_mass else "W/m3", "core_volume_m3": self.volume, "h_dc_a_m": self.h_dc,
+            "temperature_c": self.temperature,
         }
 
 
@@ -591,7 +606,7 @@ def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) 
     mats = [get_material(name) for name in s.materials]
     freqs = np.geomspace(s.f_min, s.f_max, s.n_points)
     cmp = compare_materials(mats, s.shape, b_peak=s.b_peak, loss_density=s.loss_density, duty=s.duty, freqs=freqs,
-                            h_dc=s.h_dc)
+                            h_dc=s.h_dc, temperature=s.temperature)
     n = len(cmp.curves)
     colours = list(colours) if colours is not None else ["#000000"] * n
     dashes = list(dashes) if dashes is not None else ["solid"] * n
@@ -611,7 +626,7 @@ def comparison_view(settings: ComparisonSettings, *, colours=None, dashes=None) 
     loss_in, loss_out = lines("loss")
     fb_in, fb_out = lines("fb")
     at = compare_materials(mats, s.shape, b_peak=s.b_peak, loss_density=s.loss_density, duty=s.duty,
-                           freqs=np.array([s.design_freq]), h_dc=s.h_dc)
+                           freqs=np.array([s.design_freq]), h_dc=s.h_dc, temperature=s.temperature)
     rows = []
     for c in at.curves:
         rows.append({
@@ -787,8 +802,7 @@ class CaptureSettings:
         for name in ("turns", "sense_turns", "area", "volume", "path_length"):
             if getattr(self, name) is not None:
                 _check_positive(name, getattr(self, name))
-        if self.temperature is not None and not math.isfinite(float(self.temperature)):
-            raise InputError(("temperature",), f"temperature must be finite, got {self.temperature!r}")
+        object.__setattr__(self, "temperature", _check_temperature(self.temperature))
         if self.deskew is not None and not math.isfinite(float(self.deskew)):
             raise InputError(("deskew",), f"deskew must be a finite time in s, got {self.deskew!r}")
         if self.winding_resistance is not None:
